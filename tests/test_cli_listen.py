@@ -1,0 +1,239 @@
+"""The ``listen`` command and WAV input/output, on WAV files the tests write themselves."""
+
+import json
+import math
+
+import numpy as np
+import pytest
+import soundfile as sf
+import typer
+from typer.testing import CliRunner
+
+from tonewright.audio import read_tap, read_wav, to_mono, write_wav
+from tonewright.commands.listen import register
+from tonewright.errors import InputError
+from tonewright.pitch import strike_note_hz
+from tonewright.synth import modal_strike
+
+app = typer.Typer()
+register(app)
+
+
+@app.callback()
+def _root() -> None:
+    """A group, so that the command is invoked by name as in the real tool."""
+
+
+runner = CliRunner()
+
+# An invented xylophone-like bar (1 : 3 : 6.1), 0.3 ms mallet.
+BAR_F = [523.0, 1569.0, 3190.0]
+BAR_A = [1.0, 0.6, 0.4]
+BAR_TAU = [1.2, 0.5, 0.25]
+
+
+def bar_strike(rate, dur=1.2):
+    return modal_strike(BAR_F, BAR_A, BAR_TAU, rate=rate, duration_s=dur, mallet_contact_s=3e-4)
+
+
+def listen(*args):
+    return runner.invoke(app, ["listen", *map(str, args)])
+
+
+def cents_off(f, f_ref):
+    return 1200.0 * math.log2(f / f_ref)
+
+
+@pytest.mark.parametrize("rate", [22050, 44100, 96000])
+@pytest.mark.parametrize("subtype", ["PCM_16", "PCM_24", "FLOAT"])
+@pytest.mark.parametrize("channels", [1, 2])
+def test_json_from_every_format(tmp_path, rate, subtype, channels):
+    y = bar_strike(rate, dur=0.8 if rate == 96000 else 1.2)
+    data = y if channels == 1 else np.column_stack([y, 0.7 * y])
+    path = tmp_path / "bar.wav"
+    sf.write(path, data, rate, subtype=subtype)
+    result = listen(path, "--json")
+    assert result.exit_code == 0, result.stderr
+    out = json.loads(result.stdout)  # stdout holds the JSON and nothing else
+    assert set(out) == {"partials", "warnings"}  # no strike note for a bar
+    assert out["warnings"] == []
+    got = [p["frequency_hz"] for p in out["partials"]]
+    assert len(got) == 3
+    for g, f in zip(got, BAR_F, strict=True):
+        # 0.2 cent: project target; 16-bit quantisation noise is near -98 dBFS.
+        assert abs(cents_off(g, f)) < 0.2
+    first = out["partials"][0]
+    assert set(first) == {"frequency_hz", "level_db", "decay_s", "uncertainty_hz"}
+    assert first["level_db"] == 0.0
+    assert first["decay_s"] == pytest.approx(BAR_TAU[0], rel=0.02)  # noise-free: CRB << 1 %
+
+
+def test_table_shows_notes_cents_and_ratios(tmp_path):
+    # A4 = 440 Hz (ISO 16:1975) and a partial three octaves and a major third up (ratio 10,
+    # the marimba third-partial target; REFERENCES.md, trade).
+    path = tmp_path / "a4.wav"
+    y = modal_strike([440.0, 4400.0], [1.0, 0.3], [1.0, 0.4], rate=22050, duration_s=1.0)
+    sf.write(path, y, 22050, subtype="PCM_24")
+    result = listen(path)
+    assert result.exit_code == 0, result.stderr
+    lines = result.stdout.splitlines()
+    row1 = next(line for line in lines if " A4 " in line)
+    row2 = next(line for line in lines if " C#8 " in line)
+    assert "440.000" in row1 and "1.000" in row1
+    assert "10.000" in row2
+    # C#8 is 40 semitones above A4 (equal temperament): 4400 Hz lies 13.7 cents below it.
+    cents_from_c_sharp_8 = 1200 * math.log2(4400 / (440 * 2 ** (40 / 12)))
+    assert f"{cents_from_c_sharp_8:+.1f}" in row2
+
+
+def test_chime_reports_the_strike_note(tmp_path):
+    # A free-free tube: bending modes in the ratios (beta_n L)^2 of the uniform free-free beam,
+    # 4.73004074, 7.85320462, 10.99560784, 14.13716549, 17.27875966 (Thomson, Theory of
+    # Vibration, App. D; REFERENCES.md) and the 6th root 20.42035225 (derived, (2n+1) pi / 2).
+    beta = np.array([4.73004074, 7.85320462, 10.99560784, 14.13716549, 17.27875966, 20.42035225])
+    f = 120.0 * (beta / beta[0]) ** 2
+    rng = np.random.default_rng(5)
+    y = modal_strike(
+        f,
+        [0.5, 1.0, 0.9, 0.8, 0.7, 0.6],
+        [4.0, 3.0, 2.5, 2.0, 1.5, 1.2],
+        rate=22050,
+        duration_s=1.5,
+        mallet_contact_s=2e-4,
+    )
+    y += rng.normal(0.0, 1e-3, y.size)
+    path = tmp_path / "chime.wav"
+    sf.write(path, y, 22050, subtype="PCM_24")
+    result = listen(path, "--json", "--kind", "chime")
+    assert result.exit_code == 0, result.stderr
+    out = json.loads(result.stdout)
+    assert len(out["partials"]) == 6
+    # The strike note rule lives in tonewright.pitch; here: the measured partials give the
+    # same strike note as the true ones, to the 0.2 cent target.
+    assert abs(cents_off(out["strike_hz"], strike_note_hz(f))) < 0.2
+    # Published shape (Fletcher & Rossing 1998, ch. 19, memory): about an octave below mode 4.
+    assert abs(cents_off(out["strike_hz"], f[3] / 2)) < 50
+
+    table = listen(path, "--kind", "chime")
+    assert "strike note:" in table.stdout
+
+
+def test_count_and_band_options(tmp_path):
+    path = tmp_path / "bar.wav"
+    sf.write(path, bar_strike(22050), 22050, subtype="PCM_16")
+    out = json.loads(listen(path, "--json", "--count", "2").stdout)
+    assert [round(p["frequency_hz"]) for p in out["partials"]] == [523, 1569]
+    out = json.loads(listen(path, "--json", "--fmin", "1000", "--fmax", "3000").stdout)
+    assert [round(p["frequency_hz"]) for p in out["partials"]] == [1569]
+
+
+def assert_one_line_error(result, fragment):
+    assert result.exit_code == 2
+    assert result.stdout == ""
+    lines = result.stderr.strip().splitlines()
+    assert len(lines) == 1 and lines[0].startswith("error: ")
+    assert fragment in lines[0]
+
+
+def test_text_file_named_wav(tmp_path):
+    path = tmp_path / "notes.wav"
+    path.write_text("bar 1: 523 Hz\n")
+    assert_one_line_error(listen(path), "not a readable sound file")
+
+
+def test_missing_file(tmp_path):
+    assert_one_line_error(listen(tmp_path / "nothing.wav"), "file not found")
+
+
+def test_empty_and_non_finite_files(tmp_path):
+    path = tmp_path / "empty.wav"
+    sf.write(path, np.zeros(0), 22050, subtype="PCM_16")
+    assert_one_line_error(listen(path), "holds no samples")
+    path = tmp_path / "nan.wav"
+    sf.write(path, np.array([0.0, np.nan, 0.1] * 1000), 22050, subtype="FLOAT")
+    assert_one_line_error(listen(path), "NaN")
+
+
+def test_silence(tmp_path):
+    path = tmp_path / "silence.wav"
+    sf.write(path, np.zeros(22050), 22050, subtype="PCM_16")
+    assert_one_line_error(listen(path), "silent")
+
+
+def test_ten_millisecond_file(tmp_path):
+    path = tmp_path / "short.wav"
+    sf.write(path, bar_strike(44100)[:441], 44100, subtype="PCM_24")
+    assert_one_line_error(listen(path), "need at least 0.05 s")
+
+
+def test_bad_kind_and_count(tmp_path):
+    path = tmp_path / "bar.wav"
+    sf.write(path, bar_strike(22050), 22050)
+    assert_one_line_error(listen(path, "--kind", "gong"), "--kind")
+    assert_one_line_error(listen(path, "--count", "0"), "count")
+
+
+def test_out_of_phase_stereo_uses_one_channel(tmp_path):
+    y = bar_strike(22050)
+    path = tmp_path / "pair.wav"
+    sf.write(path, np.column_stack([y, -0.95 * y]), 22050, subtype="PCM_24")
+    out = json.loads(listen(path, "--json").stdout)
+    assert any("cancel" in w for w in out["warnings"])
+    assert len(out["partials"]) == 3
+    assert abs(cents_off(out["partials"][0]["frequency_hz"], BAR_F[0])) < 0.2
+
+
+def test_clipping_warns_or_refuses(tmp_path):
+    y = bar_strike(22050)
+    mild = y.copy()
+    mild[300:306] = 1.0  # one short clipped run
+    path = tmp_path / "mild.wav"
+    sf.write(path, mild, 22050, subtype="FLOAT")
+    out = json.loads(listen(path, "--json").stdout)
+    assert any("clipped" in w for w in out["warnings"])
+    severe = np.clip(3.0 * y, -1.0, 1.0)  # a hot recording flattened for many cycles
+    path = tmp_path / "severe.wav"
+    sf.write(path, severe, 22050, subtype="FLOAT")
+    assert_one_line_error(listen(path), "badly clipped")
+
+
+# --- audio helpers ------------------------------------------------------------------------------
+
+
+def test_write_wav_is_24_bit_and_round_trips(tmp_path):
+    y = bar_strike(48000, dur=0.3)
+    path = tmp_path / "out.wav"
+    write_wav(path, y, 48000)
+    assert sf.info(str(path)).subtype == "PCM_24"
+    back, rate = read_wav(path)
+    assert rate == 48000
+    assert np.max(np.abs(back - y)) <= 2.0**-23  # one 24-bit step (rounding is half of it)
+    with pytest.raises(InputError, match="exists"):
+        write_wav(path, y, 48000)
+    write_wav(path, 0.5 * y, 48000, overwrite=True)
+    assert np.max(np.abs(read_wav(path)[0])) == pytest.approx(0.5 * np.max(np.abs(y)), abs=1e-6)
+    assert [p.name for p in tmp_path.iterdir()] == ["out.wav"]  # no temporary file left
+
+
+def test_write_wav_refuses_bad_samples(tmp_path):
+    with pytest.raises(InputError, match="full scale"):
+        write_wav(tmp_path / "x.wav", np.array([0.0, 1.5]), 8000)
+    with pytest.raises(InputError, match="NaN"):
+        write_wav(tmp_path / "x.wav", np.array([0.0, np.nan]), 8000)
+    with pytest.raises(InputError, match="rate"):
+        write_wav(tmp_path / "x.wav", np.zeros(10), 0)
+
+
+def test_to_mono_mixes_in_phase_channels():
+    x = np.column_stack([np.ones(4), 0.5 * np.ones(4)])
+    mono, note = to_mono(x)
+    assert np.allclose(mono, 0.75) and note is None
+
+
+def test_read_tap_reports_channels(tmp_path):
+    path = tmp_path / "s.wav"
+    y = bar_strike(8000, dur=0.5)
+    sf.write(path, np.column_stack([y, y, y]), 8000)
+    rec = read_tap(path)
+    assert rec.channels == 3 and rec.rate == 8000 and rec.samples.ndim == 1
+    assert rec.duration_s == pytest.approx(0.5)

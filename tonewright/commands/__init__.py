@@ -1,0 +1,1 @@
+"""One module per command; each exposes ``register(app)``. Commands only parse, call and print."""

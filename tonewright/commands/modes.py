@@ -1,0 +1,117 @@
+"""``tonewright modes FILE``: the partials of a part, as a table or JSON."""
+
+from __future__ import annotations
+
+import json
+from pathlib import Path
+from typing import Annotated
+
+import typer
+from rich import box
+from rich.console import Console
+from rich.table import Table
+
+from forward import ModalResult, families_of, solve
+from tonewright.cli_support import guarded
+from tonewright.errors import InputError
+from tonewright.partfile import load_part
+from tonewright.pitch import hz_to_note
+
+__all__ = ["modes_payload", "register", "solve_part_file"]
+
+
+def solve_part_file(path: Path, count: int) -> tuple[ModalResult, str]:
+    """Load a part file and solve ``count`` modes of each of its families."""
+    part_file, base = load_part(path)
+    part = part_file.to_part(base)
+    counts = dict.fromkeys(families_of(part), count)
+    result = solve(
+        part, counts, tol_cents=part_file.model.tolerance_cents, theory=part_file.model.theory
+    )
+    return result, part_file.title or path.stem
+
+
+def _reference_hz(result: ModalResult) -> float:
+    first = [m for m in result.modes if m.family in ("bending", "transverse") and m.order == 1]
+    return first[0].frequency_hz if first else result.modes[0].frequency_hz
+
+
+def modes_payload(result: ModalResult, a4_hz: float) -> dict:
+    """The JSON form: one entry per mode, frequencies in Hz and node positions in mm."""
+    ref = _reference_hz(result)
+    out = []
+    for m in result.modes:
+        note, offset = hz_to_note(m.frequency_hz, a4_hz)
+        out.append(
+            {
+                "family": m.family,
+                "order": m.order,
+                "frequency_hz": round(m.frequency_hz, 6),
+                "ratio": round(m.frequency_hz / ref, 6),
+                "note": note,
+                "cents": round(offset, 3),
+                "error_cents": float(f"{m.error_cents:.3g}"),
+                "nodes_mm": [round(x * 1e3, 3) for x in m.nodes_m],
+            }
+        )
+    return {
+        "modes": out,
+        "converged": result.converged,
+        "max_error_cents": float(f"{result.max_error_cents:.3g}"),
+        "a4_hz": a4_hz,
+    }
+
+
+def _table(payload: dict, title: str, node_rows: int) -> Table:
+    table = Table(title=title, box=box.SIMPLE_HEAD)
+    for name, justify in [
+        ("family", "left"),
+        ("n", "right"),
+        ("Hz", "right"),
+        ("ratio", "right"),
+        ("note", "left"),
+        ("cents", "right"),
+        ("nodes (mm)", "left"),
+    ]:
+        table.add_column(name, justify=justify)
+    for i, m in enumerate(payload["modes"]):
+        nodes = ", ".join(f"{x:.1f}" for x in m["nodes_mm"]) if i < node_rows else ""
+        table.add_row(
+            m["family"],
+            str(m["order"]),
+            f"{m['frequency_hz']:.2f}",
+            f"{m['ratio']:.3f}",
+            m["note"],
+            f"{m['cents']:+.1f}",
+            nodes,
+        )
+    return table
+
+
+def register(app: typer.Typer) -> None:
+    @app.command("modes")
+    @guarded
+    def modes(
+        file: Annotated[Path, typer.Argument(help="Part file (.toml) or design result (.json).")],
+        count: Annotated[int, typer.Option("--count", "-n", help="Modes of each family.")] = 4,
+        a4: Annotated[float, typer.Option("--a4", help="Pitch reference A4 in Hz.")] = 440.0,
+        as_json: Annotated[bool, typer.Option("--json", help="Print JSON on stdout.")] = False,
+    ) -> None:
+        """Compute the partials of a bar, tube or string: frequency, ratio, note and nodes."""
+        if not 1 <= count <= 50:
+            raise InputError(f"--count {count}: give 1 to 50 modes per family")
+        if not 300.0 <= a4 <= 600.0:
+            raise InputError(f"--a4 {a4}: give the pitch reference in Hz (e.g. 440 or 442)")
+        result, title = solve_part_file(file, count)
+        payload = modes_payload(result, a4)
+        if as_json:
+            typer.echo(json.dumps(payload, indent=2))
+            return
+        console = Console()
+        console.print(_table(payload, title, node_rows=len(payload["modes"])))
+        console.print(
+            f"ratio: to the first bending (or string) mode; notes at A4 = {a4:g} Hz; "
+            f"{result.message}."
+        )
+        if not result.converged:
+            raise typer.Exit(code=1)
