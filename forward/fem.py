@@ -187,9 +187,13 @@ class Term:
     B: np.ndarray
 
 
-def assemble(n_dof: int, dofs_q: np.ndarray, weights: np.ndarray, B: np.ndarray) -> np.ndarray:
-    """Dense n_dof x n_dof matrix of sum_q weights_q B_qi B_qj scattered to dofs_q."""
-    local = (weights[:, None, None] * B[:, :, None]) * B[:, None, :]
+def assemble(
+    n_dof: int, dofs_q: np.ndarray, weights: list[np.ndarray], B: list[np.ndarray]
+) -> np.ndarray:
+    """Dense n_dof x n_dof matrix of sum_t sum_q weights_tq B_tqi B_tqj scattered to dofs_q."""
+    local = sum(
+        np.einsum("q,qi,qj->qij", w, b, b, optimize=False) for w, b in zip(weights, B, strict=True)
+    )
     flat = (dofs_q[:, :, None] * n_dof + dofs_q[:, None, :]).ravel()
     return np.bincount(flat, weights=local.ravel(), minlength=n_dof * n_dof).reshape(n_dof, n_dof)
 

@@ -10,6 +10,7 @@ from pathlib import Path
 from typing import Any, TypeVar
 
 import typer
+from threadpoolctl import threadpool_limits
 
 from tonewright.errors import InputError
 
@@ -30,7 +31,9 @@ def guarded(func: F) -> F:
     @functools.wraps(func)
     def wrapper(*args: Any, **kwargs: Any) -> Any:
         try:
-            return func(*args, **kwargs)
+            # the eigenproblems here are small: one BLAS thread is fastest and repeatable
+            with threadpool_limits(limits=1, user_api="blas"):
+                return func(*args, **kwargs)
         except InputError as exc:
             raise fail(str(exc)) from None
         except FileNotFoundError as exc:

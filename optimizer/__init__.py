@@ -1,0 +1,28 @@
+"""Inverse design of bars, tubes and strings: search the geometry until partials meet goals.
+
+``Evaluator`` turns a design space and goals into residuals (cents) with analytic Jacobians;
+``design`` runs CMA-ES then a least-squares polish and returns a ``DesignResult``.
+"""
+
+from optimizer.objective import Clearance, Evaluation, Evaluator, Goal, UnwantedMode, mac
+from optimizer.search import DesignResult, SearchSettings, design
+from optimizer.sensitivity import eigenvalue_gradients, mode_densities
+from optimizer.spaces import BarUndercut, DesignField, StringDensity, TubeDesign
+
+__all__ = [
+    "BarUndercut",
+    "Clearance",
+    "DesignField",
+    "DesignResult",
+    "Evaluation",
+    "Evaluator",
+    "Goal",
+    "SearchSettings",
+    "StringDensity",
+    "TubeDesign",
+    "UnwantedMode",
+    "design",
+    "eigenvalue_gradients",
+    "mac",
+    "mode_densities",
+]

@@ -1,0 +1,348 @@
+"""The design objective: errors in cents of the tuned partials, clearance of unwanted modes.
+
+For a goal partial with target f_t, tolerance tol and weight w, the residual is
+    r = w * 1200 log2(f / f_t) / tol,
+so |r| <= w means "within tolerance". A derived goal such as a chime's strike note combines
+bending partials as a weighted geometric mean, f = prod_k (f_k / d_k)^(a_k), and its residual
+is the same sum in cents. With lambda = (2 pi f)^2,
+    d cents / d s = (1200 / ln 2) * (1 / (2 lambda)) * d lambda / d s,
+and d lambda / d s comes from ``optimizer.sensitivity``.
+
+Unwanted modes (torsion, lateral bending) must keep clear of every goal partial: the gap
+|f_m - f_p| must be at least ``keep_clear_hz(f_p)`` (the caller's rule, e.g. half a critical
+bandwidth: outside the critical band centred on the partial), or at most ``coincidence_hz``
+(a mode that close merges with the partial; common practice, no source). A violation adds a
+hinge residual (0 when clear).
+
+Modes are identified within their family by shape as well as order: the modal assurance
+criterion (Allemang, R. J. & Brown, D. L., 1982, "A correlation coefficient for modal vector
+analysis", Proc. 1st IMAC, 110-116) against the starting design's shapes; in the decoupled
+beam families the two always agree, and a disagreement is reported.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Callable, Sequence
+from dataclasses import dataclass, field
+
+import numpy as np
+
+from forward.geometry import Part
+from forward.modal import (
+    Discretisation,
+    assemble_family,
+    discretise,
+    lowest_modes,
+    section_coefficients,
+)
+from optimizer.sensitivity import eigenvalue_gradients
+
+__all__ = ["Clearance", "Evaluation", "Evaluator", "Goal", "UnwantedMode", "mac"]
+
+CENTS_PER_LN = 1200.0 / np.log(2.0)
+
+
+@dataclass(frozen=True)
+class Goal:
+    """A partial to tune: family and order within it, or a derived ``strike`` note with
+    ``components`` = ((bending order, divisor, exponent), ...)."""
+
+    family: str
+    order: int
+    f_hz: float
+    tolerance_cents: float = 1.0
+    weight: float = 1.0
+    components: tuple[tuple[int, float, float], ...] = ()
+
+    @property
+    def label(self) -> str:
+        return "strike note" if self.family == "strike" else f"{self.family} {self.order}"
+
+
+@dataclass(frozen=True)
+class Clearance:
+    """Families that must keep clear of the goals, and the band to keep clear by."""
+
+    families: tuple[str, ...]
+    keep_clear_hz: Callable[[np.ndarray], np.ndarray]
+    coincidence_hz: float = 3.0
+    weight: float = 1.0
+
+
+@dataclass(frozen=True)
+class UnwantedMode:
+    family: str
+    order: int
+    f_hz: float
+    nearest_goal: str
+    gap_hz: float
+    band_hz: float
+    coincidence_hz: float
+
+    @property
+    def clear(self) -> bool:
+        return not (self.coincidence_hz < self.gap_hz < self.band_hz)
+
+
+@dataclass(frozen=True, eq=False)
+class Evaluation:
+    u: np.ndarray
+    achieved_hz: np.ndarray  # per goal
+    errors_cents: np.ndarray  # per goal
+    unwanted: tuple[UnwantedMode, ...]
+    clearance_violation: np.ndarray  # hinge values (Hz), one per unwanted mode
+    residuals: np.ndarray
+    jacobian: np.ndarray | None
+    shapes: dict[str, np.ndarray] = field(repr=False, default_factory=dict)
+    mac_ok: bool = True
+
+    def within_tolerance(self, goals: Sequence[Goal]) -> bool:
+        tol = np.array([g.tolerance_cents for g in goals])
+        return bool(np.all(np.abs(self.errors_cents) <= tol))
+
+
+def mac(a: np.ndarray, b: np.ndarray) -> np.ndarray:
+    """Modal assurance criterion between the columns of a and of b (sampled shapes)."""
+    num = np.abs(a.T @ b) ** 2
+    return num / np.outer(np.sum(a * a, axis=0), np.sum(b * b, axis=0))
+
+
+class Evaluator:
+    """Evaluates a design space against goals, reusing the mesh while the length is fixed."""
+
+    def __init__(
+        self,
+        space,
+        goals: Sequence[Goal],
+        clearance: Clearance | None = None,
+        theory: str = "timoshenko",
+        degree: int | None = None,
+        elements: int = 4,
+        mesh_tol_cents: float = 0.005,
+    ) -> None:
+        self.space = space
+        self.goals = tuple(goals)
+        self.clearance = clearance
+        self.theory = theory
+        self.elements = elements
+        self.mesh_tol_cents = mesh_tol_cents
+        self.counts = self._counts()
+        self.solves = 0
+        self._reference_shapes: dict[str, np.ndarray] | None = None
+        self._cache: dict[bytes, Evaluation] = {}
+        self.degree = degree or self._converged_degree(space.part(space.start()))
+        self._set_mesh()
+
+    def _set_mesh(self) -> None:
+        self._fixed_disc: Discretisation | None = None
+        if self.space.length_index is None:
+            self._fixed_disc = self._discretise(self.space.part(self.space.start()))
+        self._cache.clear()
+
+    def refine(self) -> None:
+        """Raise the polynomial degree (after a certified solve disagreed with this mesh)."""
+        self.degree += 2
+        self._set_mesh()
+
+    def _converged_degree(self, part: Part) -> int:
+        """Lowest degree whose nested (p - 1 vs p) error estimate is within mesh_tol_cents
+        for every mode the goals and the clearance need, on the starting design."""
+        for p in range(4, 13):
+            self.degree = p
+            disc = self._discretise(part)
+            coef = section_coefficients(part, disc.quad.x)
+            worst = 0.0
+            for fam, count in self.counts.items():
+                system = assemble_family(part, disc, fam, coef)
+                hi = lowest_modes(system, count)[0]
+                lo = lowest_modes(system, count, subspace=np.flatnonzero(system.lower))[0]
+                n = min(hi.size, lo.size)
+                worst = max(worst, float(np.max(600 * np.log2(lo[:n] / hi[:n]))))
+            if worst <= self.mesh_tol_cents:
+                return p
+        return 12
+
+    def _counts(self) -> dict[str, int]:
+        counts: dict[str, int] = {}
+        for g in self.goals:
+            if g.family == "strike":
+                top = max(c[0] for c in g.components)
+                counts["bending"] = max(counts.get("bending", 0), top)
+            else:
+                counts[g.family] = max(counts.get(g.family, 0), g.order)
+        if self.clearance:
+            for fam in self.clearance.families:
+                counts.setdefault(fam, 3)
+        return counts
+
+    def _discretise(self, part: Part) -> Discretisation:
+        return discretise(part, elements=self.elements, degree=self.degree, theory=self.theory)
+
+    def _solve(self, u: np.ndarray, want_vectors: bool):
+        part = self.space.part(u)
+        disc = self._fixed_disc or self._discretise(part)
+        coef = section_coefficients(part, disc.quad.x)
+        top = max(g.f_hz for g in self.goals)
+        out = {}
+        for fam, count in self.counts.items():
+            system = assemble_family(part, disc, fam, coef)
+            n = count
+            while True:
+                lam, vec = lowest_modes(system, n)
+                enough = lam.size < n or fam not in (
+                    self.clearance.families if self.clearance else ()
+                )
+                if enough or np.sqrt(lam[-1]) / (2 * np.pi) > 1.3 * top or n >= 12:
+                    break
+                n += 3
+            out[fam] = (lam, vec, system)
+        self.solves += 1
+        return part, disc, out
+
+    def _frequencies(self, modes) -> tuple[np.ndarray, list[list[tuple[str, int, float]]]]:
+        """Per goal: achieved frequency and the (family, index, exponent) lambdas it uses."""
+        achieved, uses = [], []
+        for g in self.goals:
+            if g.family == "strike":
+                lam = modes["bending"][0]
+                logf, use = 0.0, []
+                for order, divisor, exponent in g.components:
+                    f = np.sqrt(lam[order - 1]) / (2 * np.pi)
+                    logf += exponent * np.log(f / divisor)
+                    use.append(("bending", order - 1, exponent))
+                achieved.append(np.exp(logf))
+                uses.append(use)
+            else:
+                lam = modes[g.family][0]
+                if lam.size < g.order:
+                    raise ValueError(f"the part has fewer than {g.order} {g.family} modes")
+                achieved.append(np.sqrt(lam[g.order - 1]) / (2 * np.pi))
+                uses.append([(g.family, g.order - 1, 1.0)])
+        return np.array(achieved), uses
+
+    def _unwanted(self, modes, achieved: np.ndarray) -> tuple[list[UnwantedMode], np.ndarray, list]:
+        """Unwanted modes up to 1.3 x the top goal (for the report) and a fixed-size hinge:
+        for each clearance family and goal, the worst violation by any mode of the family."""
+        if not self.clearance:
+            return [], np.zeros(0), []
+        c = self.clearance
+        band = c.keep_clear_hz(achieved)
+        found, hinge, which = [], [], []
+        for fam in c.families:
+            f = np.sqrt(np.maximum(modes[fam][0], 0.0)) / (2 * np.pi)
+            for k, fk in enumerate(f):
+                if fk > 1.3 * achieved.max():
+                    break
+                gaps = np.abs(fk - achieved)
+                j = int(np.argmin(gaps / band))
+                found.append(
+                    UnwantedMode(
+                        fam,
+                        k + 1,
+                        float(fk),
+                        self.goals[j].label,
+                        float(gaps[j]),
+                        float(band[j]),
+                        c.coincidence_hz,
+                    )
+                )
+            for j in range(achieved.size):
+                gaps = np.abs(f - achieved[j])
+                inside = (gaps > c.coincidence_hz) & (gaps < band[j])
+                v = np.where(inside, np.minimum(band[j] - gaps, gaps - c.coincidence_hz), 0.0)
+                k = int(np.argmax(v)) if v.size else 0
+                hinge.append(float(v[k]) if v.size else 0.0)
+                which.append((fam, k, j, float(gaps[k]) if v.size else 0.0, float(band[j])))
+        return found, np.array(hinge), which
+
+    def evaluate(self, u: np.ndarray, jacobian: bool = False) -> Evaluation:
+        u = np.asarray(u, dtype=float)
+        key = u.tobytes()
+        cached = self._cache.get(key)
+        if cached is not None and (cached.jacobian is not None or not jacobian):
+            return cached
+        part, disc, modes = self._solve(u, jacobian)
+        achieved, uses = self._frequencies(modes)
+        errors = np.array(
+            [CENTS_PER_LN * np.log(f / g.f_hz) for f, g in zip(achieved, self.goals, strict=True)]
+        )
+        scale = np.array([g.weight / g.tolerance_cents for g in self.goals])
+        unwanted, hinge, which = self._unwanted(modes, achieved)
+        cw = self.clearance.weight if self.clearance else 0.0
+        band = np.array([w[4] for w in which])
+        residuals = np.concatenate([errors * scale, cw * 100.0 * hinge / np.maximum(band, 1e-9)])
+        shapes = {fam: vec for fam, (lam, vec, system) in modes.items()}
+        mac_ok = self._track(shapes)
+        J = None
+        if jacobian:
+            J = self._jacobian(u, part, disc, modes, uses, achieved, which, scale, cw)
+        ev = Evaluation(u, achieved, errors, tuple(unwanted), hinge, residuals, J, shapes, mac_ok)
+        if len(self._cache) > 64:
+            self._cache.clear()
+        self._cache[key] = ev
+        return ev
+
+    def _track(self, shapes: dict[str, np.ndarray]) -> bool:
+        """True when every goal family's modes still match the first design's by shape."""
+        if self._reference_shapes is None:
+            self._reference_shapes = {f: v for f, v in shapes.items() if f != "strike"}
+            return True
+        for fam, ref in self._reference_shapes.items():
+            cur = shapes.get(fam)
+            if cur is None or cur.shape[0] != ref.shape[0]:
+                continue  # a new mesh (free length): order is the identification
+            k = min(ref.shape[1], cur.shape[1])
+            best = np.argmax(mac(ref[:, :k], cur[:, :k]), axis=1)
+            if np.any(best != np.arange(k)):
+                return False
+        return True
+
+    def _dlam(self, u, part, disc, modes) -> dict[str, np.ndarray]:
+        """d lambda / d u for every solved mode of every family, (n_modes, n_vars)."""
+        n = self.space.n
+        dcoef = self.space.coefficient_jacobian(u, part, disc.quad.x)
+        li = self.space.length_index
+        out = {}
+        for fam, (lam, vec, system) in modes.items():
+            grad = np.zeros((lam.size, n))
+            if dcoef:
+                shape_idx = [k for k in range(n) if k != li]
+                g = eigenvalue_gradients(system, lam, vec, dcoef)
+                grad[:, shape_idx] = g
+            out[fam] = grad
+        if li is not None:
+            # the length stretches the mesh: a central difference, two extra solves
+            h = 1e-6
+            up, dn = u.copy(), u.copy()
+            up[li] = min(u[li] + h, 1.0)
+            dn[li] = max(u[li] - h, 0.0)
+            _, _, mp = self._solve(up, False)
+            _, _, mm = self._solve(dn, False)
+            for fam in out:
+                k = min(mp[fam][0].size, mm[fam][0].size, out[fam].shape[0])
+                out[fam][:k, li] = (mp[fam][0][:k] - mm[fam][0][:k]) / (up[li] - dn[li])
+        return out
+
+    def _jacobian(self, u, part, disc, modes, uses, achieved, which, scale, cw):
+        dlam = self._dlam(u, part, disc, modes)
+        n = self.space.n
+        rows = []
+        for use in uses:
+            row = np.zeros(n)
+            for fam, idx, exponent in use:
+                lam = modes[fam][0][idx]
+                row += exponent * CENTS_PER_LN * dlam[fam][idx] / (2.0 * lam)
+            rows.append(row)
+        J_goals = np.array(rows) * scale[:, None]
+        J_clear = np.zeros((len(which), n))
+        coincidence = self.clearance.coincidence_hz if self.clearance else 0.0
+        for r, (fam, k, j, gap, band) in enumerate(which):
+            if not coincidence < gap < band:
+                continue
+            f_m = np.sqrt(modes[fam][0][k]) / (2 * np.pi)
+            df_m = dlam[fam][k] / (8 * np.pi**2 * f_m)  # df/dlambda = 1 / (8 pi^2 f)
+            df_p = J_goals[j] / scale[j] * achieved[j] / CENTS_PER_LN
+            dgap = np.sign(f_m - achieved[j]) * (df_m - df_p)
+            near_band = (band - gap) <= (gap - coincidence)
+            J_clear[r] = (-dgap if near_band else dgap) * cw * 100.0 / band
+        return np.vstack([J_goals, J_clear])

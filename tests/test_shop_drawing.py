@@ -1,0 +1,93 @@
+"""Dimensioned drawing: scale, dimensions and tables against the part; cents; determinism."""
+
+from __future__ import annotations
+
+import math
+import re
+import xml.etree.ElementTree as ET
+
+import numpy as np
+import pytest
+
+from tonewright.errors import InputError
+from tonewright.shop.drawing import cents, drawing_pdf, drawing_scale, drawing_svg
+from tonewright.shop.part import ShopPart, demo_part
+
+SVG = "{http://www.w3.org/2000/svg}"
+
+
+@pytest.fixture(scope="module")
+def demo_svg():
+    return ET.fromstring(drawing_svg(demo_part()))
+
+
+def texts(root: ET.Element) -> list[str]:
+    return ["".join(t.itertext()) for t in root.iter(f"{SVG}text")]
+
+
+def test_cents_definition():
+    # An octave is 1200 cents and an equal-tempered semitone 100 (Ellis, A.J. (1885),
+    # "On the musical scales of various nations", J. Soc. Arts 33: the cent defined).
+    assert cents(880.0, 440.0) == pytest.approx(1200.0)
+    assert cents(440.0 * 2 ** (1 / 12), 440.0) == pytest.approx(100.0)
+    assert cents(440.0, 880.0) == pytest.approx(-1200.0)
+
+
+def test_scale_and_outline_size(demo_svg):
+    s, label = drawing_scale(demo_part())
+    assert (s, label) == (0.5, "1:2")  # 380 mm does not fit 1:1 on A4 landscape, 1:2 does
+    vb = [float(v) for v in demo_svg.attrib["viewBox"].split()]
+    mm = float(demo_svg.attrib["width"].removesuffix("mm")) / vb[2]
+    group = demo_svg.find(f".//{SVG}g[@id='drawing-outline']")
+    d = group.find(f"{SVG}path").attrib["d"]
+    pts = np.array([float(v) for v in re.findall(r"-?\d+\.?\d*", d)]).reshape(-1, 2) * mm
+    assert pts[1, 0] - pts[0, 0] == pytest.approx(0.5 * 380.0, abs=1e-4)
+    depth_on_paper = pts[:, 1].max() - pts[:, 1].min()  # SVG y down: top edge is the min
+    assert depth_on_paper == pytest.approx(0.5 * 20.0, abs=1e-4)
+    assert any("1:2 on A4 landscape" in t for t in texts(demo_svg))
+
+
+def test_dimensions_and_tables(demo_svg):
+    part = demo_part()
+    t = texts(demo_svg)
+    joined = " | ".join(t)
+    for dim in ("380.0", "20.0", "50.0"):
+        assert dim in t  # overall length, blank thickness, width
+    for i, n in enumerate(part.node_positions_m, start=1):
+        assert f"node {i}: {n * 1000:.1f} \u00b1 {part.node_tolerance_m * 1000:.1f}" in t
+    # Every station row: number, x, thickness to leave, depth of cut from the blank bottom.
+    T = part.blank_thickness_m * 1000
+    for k, (x, th) in enumerate(zip(part.stations_x_m, part.stations_thickness_m, strict=True)):
+        assert f"{x * 1000:.1f}" in t and f"{th * 1000:.2f}" in t
+        assert f"{T - th * 1000:.2f}" in t
+        assert f"{k + 1}" in t
+    for _label, target, pred in part.partials:
+        assert f"{pred:.2f}" in t
+        assert f"{1200 * math.log2(pred / target):+.1f}" in t
+    assert part.material_name in joined and part.grain_note in joined
+    assert "CAUTIONS" in joined and "tonewright" in joined
+    assert "thinnest: leave 6.00 at x = 190.0" in joined
+
+
+def test_many_stations_are_thinned_with_a_note():
+    x = np.linspace(0.0, 0.38, 200)
+    t = 0.02 - 0.014 * np.sin(np.pi * x / 0.38) ** 2
+    part = ShopPart("dense", 0.38, 0.05, 0.02, tuple(x), tuple(t))
+    root = ET.fromstring(drawing_svg(part))
+    joined = " ".join(texts(root))
+    assert re.search(r"One station in \d+ listed", joined)
+    assert "200" in texts(root)  # the last station is always listed
+
+
+def test_small_and_large_papers():
+    long_bar = ShopPart("long", 1.1, 0.06, 0.025, (0.0, 0.55, 1.1), (0.025, 0.015, 0.025))
+    assert drawing_scale(long_bar, "A4", "landscape")[1] == "1:5"
+    assert drawing_scale(long_bar, "A3", "landscape")[1] == "1:4"
+    with pytest.raises(InputError, match="paper"):
+        drawing_scale(long_bar, "B5")
+
+
+def test_pdf_is_one_page_and_byte_stable():
+    pdf = drawing_pdf(demo_part())
+    assert len(re.findall(rb"/Type /Page\b", pdf)) == 1
+    assert pdf == drawing_pdf(demo_part())

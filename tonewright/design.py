@@ -1,0 +1,310 @@
+"""From a part file with [target] and [design] tables to an optimizer run, and back to files.
+
+The ``[design]`` table (all optional; lengths in mm unless a unit is written):
+
+    shape = "spline"          # bars: spline | arch | steps
+    control_points = 5        # spline
+    steps = 3                 # steps
+    symmetric = true
+    free_length = false       # bars: let the length set the pitch
+    length_range = [340, 460] # with free_length; tubes always
+    min_thickness = 4         # thinnest the bar may be anywhere (default 20 % of the blank)
+    max_depth = 16            # deepest cut (default: blank - min_thickness)
+    end_keep = 10             # ends kept at full thickness
+    node_zone = 12            # uncut width at each mode-1 node (holes, cords)
+    cutter_radius = 25        # smallest radius the cutter or sanding drum can follow
+    clearance = "critical-band"  # or "off": keep torsion/lateral modes out of each partial's
+                              # critical band (Zwicker & Terhardt, 1980), centred on the partial
+    clearance_bands = 1.0     # width of that keep-clear band, in critical bandwidths
+    coincidence_hz = 3        # ... unless within this many Hz of a partial
+    wall_range = [1.5, 3]     # tubes: wall thickness bounds (enables a wall profile)
+    density_range = [0.5e-3, 4e-3]  # strings: linear density bounds, kg/m
+    seed = 1
+    budget = 2000             # forward solves at most
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+from typing import Any, Literal
+
+import numpy as np
+from pydantic import BaseModel, ConfigDict, Field, ValidationError, model_validator
+
+from forward import Bar, String, Tube, solve
+from forward.geometry import Part
+from optimizer import (
+    BarUndercut,
+    Clearance,
+    DesignResult,
+    Evaluator,
+    Goal,
+    SearchSettings,
+    StringDensity,
+    TubeDesign,
+    design,
+)
+from tonewright.errors import InputError, from_validation_error
+from tonewright.partfile import PartFile
+from tonewright.pitch import critical_bandwidth_hz
+from tonewright.targets import ResolvedTarget, parse_target, resolve
+from tonewright.units import Length
+
+__all__ = [
+    "STRIKE_COMPONENTS",
+    "DesignTable",
+    "Problem",
+    "achieved",
+    "build_problem",
+    "certify",
+    "part_table",
+    "run_design",
+    "station_profile",
+]
+
+# strike note = geometric mean of f4/2, f5/3, f6/4 (tonewright.pitch.strike_note_hz)
+STRIKE_COMPONENTS = ((4, 2.0, 1.0 / 3.0), (5, 3.0, 1.0 / 3.0), (6, 4.0, 1.0 / 3.0))
+
+
+class DesignTable(BaseModel):
+    model_config = ConfigDict(extra="forbid", frozen=True)
+    shape: Literal["spline", "arch", "steps"] = "spline"
+    control_points: int = Field(default=5, ge=2, le=12)
+    steps: int = Field(default=3, ge=1, le=8)
+    symmetric: bool = True
+    free_length: bool = False
+    length_range: tuple[Length, Length] | None = None
+    min_thickness: Length | None = None
+    max_depth: Length | None = None
+    end_keep: Length | float = 0.0
+    node_zone: Length | float = 0.0
+    cutter_radius: Length | float = 0.0
+    clearance: Literal["critical-band", "off"] = "critical-band"
+    clearance_bands: float = Field(default=1.0, gt=0.0, le=4.0)
+    coincidence_hz: float = Field(default=3.0, ge=0.0, le=50.0)
+    wall_range: tuple[Length, Length] | None = None
+    density_range: tuple[float, float] | None = None
+    seed: int = Field(default=1, ge=0)
+    budget: int = Field(default=2000, ge=50, le=100000)
+
+    @model_validator(mode="after")
+    def _ranges(self) -> DesignTable:
+        for name in ("length_range", "wall_range", "density_range"):
+            r = getattr(self, name)
+            if r is not None and not 0 < r[0] < r[1]:
+                raise ValueError(f"{name} must be [smaller, larger] positive values")
+        if self.free_length and self.length_range is None:
+            raise ValueError("free_length needs length_range = [shortest, longest]")
+        return self
+
+
+@dataclass(frozen=True, eq=False)
+class Problem:
+    part_file: PartFile
+    blank: Part
+    space: object
+    evaluator: Evaluator
+    target: ResolvedTarget
+    table: DesignTable
+
+
+def _goals(target: ResolvedTarget) -> list[Goal]:
+    goals = []
+    for p in target.partials:
+        comps = STRIKE_COMPONENTS if p.family == "strike" else ()
+        goals.append(Goal(p.family, p.order, p.f_hz, p.tolerance_cents, p.weight, comps))
+    return goals
+
+
+def _space(part_file: PartFile, blank: Part, table: DesignTable):
+    if isinstance(blank, Bar):
+        t0 = part_file.bar.thickness
+        if part_file.bar.profile:
+            raise InputError(
+                "bar.profile: give the uncut blank for a design (drop profile); "
+                "to tune a half-finished bar use 'tonewright advise'"
+            )
+        min_t = table.min_thickness if table.min_thickness is not None else 0.2 * t0
+        if min_t >= t0:
+            raise InputError(
+                f"design.min_thickness {min_t * 1e3:g} mm must be under the blank thickness "
+                f"{t0 * 1e3:g} mm"
+            )
+        space = BarUndercut(
+            blank=blank,
+            blank_thickness=t0,
+            shape=table.shape,
+            control_points=table.control_points,
+            steps=table.steps,
+            symmetric=table.symmetric,
+            max_depth=table.max_depth or 0.0,
+            min_thickness=min_t,
+            end_keep=float(table.end_keep),
+            node_zone=float(table.node_zone),
+            cutter_radius=float(table.cutter_radius),
+            length_range=table.length_range if table.free_length else None,
+        )
+        L_max = table.length_range[1] if table.free_length else blank.length
+        if 2 * space.cut_edge(L_max) >= 0.9 * L_max:
+            raise InputError("design.end_keep/node_zone leave no room for a cut: make them smaller")
+        return space
+    if isinstance(blank, Tube):
+        lr = table.length_range or (0.5 * blank.length, 1.5 * blank.length)
+        return TubeDesign(
+            blank, lr, table.wall_range, table.control_points if table.wall_range else 0
+        )
+    if table.density_range is None:
+        raise InputError("design.density_range = [lightest, heaviest] kg/m is needed for a string")
+    return StringDensity(blank, table.density_range, table.control_points, table.symmetric)
+
+
+def build_problem(part_file: PartFile, base_dir=None, seed: int | None = None) -> Problem:
+    """Validate the [target] and [design] tables and set up the evaluator."""
+    if part_file.target is None:
+        raise InputError("the part file has no [target] table: say what to tune to")
+    try:
+        table = DesignTable.model_validate(part_file.design or {})
+    except ValidationError as exc:
+        raise from_validation_error(exc, "design") from None
+    if seed is not None:
+        table = table.model_copy(update={"seed": seed})
+    spec = part_file.material_spec(base_dir)
+    coeff = spec.temp_coeff_cents_per_K if spec is not None else None
+    target = resolve(parse_target(part_file.target), material_temp_coeff=coeff)
+    blank = part_file.to_part(base_dir)
+    families = {p.family for p in target.partials}
+    if isinstance(blank, String) and families != {"bending"}:
+        raise InputError("target: a string's partials are its transverse modes; give ratios only")
+    goals = _goals(target)
+    if isinstance(blank, String):
+        goals = [Goal("transverse", g.order, g.f_hz, g.tolerance_cents, g.weight) for g in goals]
+    space = _space(part_file, blank, table)
+    clearance = None
+    if isinstance(blank, Bar) and table.clearance == "critical-band":
+        fams = tuple(f for f in ("torsion", "lateral") if f not in families)
+        bands = table.clearance_bands
+
+        def keep_clear_hz(f: np.ndarray) -> np.ndarray:
+            # half of a band `bands` critical bandwidths wide, centred on the partial
+            return 0.5 * bands * critical_bandwidth_hz(f)
+
+        clearance = Clearance(fams, keep_clear_hz, table.coincidence_hz)
+    theory = part_file.model.theory
+    evaluator = Evaluator(space, goals, clearance, theory=theory)
+    return Problem(part_file, blank, space, evaluator, target, table)
+
+
+def run_design(problem: Problem, progress=None) -> DesignResult:
+    settings = SearchSettings(seed=problem.table.seed, budget=problem.table.budget)
+    return design(problem.evaluator, settings, progress)
+
+
+def station_profile(problem: Problem, u: np.ndarray, spacing: float = 1e-3) -> np.ndarray:
+    """Thickness stations (x, h) in metres at ``spacing`` or finer, with every kink of the cut
+    (and both sides of a step) included, so that linear interpolation reproduces the design."""
+    space = problem.space
+    L = space.length(u)
+    n = int(np.ceil(L / spacing))
+    x = np.linspace(0.0, L, n + 1)
+    kinks = space.kinks(u)
+    eps = 1e-6
+    extra = np.concatenate([kinks - eps, kinks + eps]) if space.shape == "steps" else kinks
+    x = np.unique(np.concatenate([x, extra[(extra > 0) & (extra < L)]]))
+    h = space.blank_thickness - space.depth_and_jacobian(u, x)[0]
+    return np.column_stack([x, h])
+
+
+def certify(problem: Problem, part: Part):
+    """An independent, accuracy-controlled solve (0.01 cent) of the part as written to file,
+    with the families the goals and the clearance need."""
+    counts = dict(problem.evaluator.counts)
+    for fam in counts:
+        counts[fam] = max(counts[fam], 4)
+    return solve(part, counts, tol_cents=0.01, theory=problem.part_file.model.theory)
+
+
+def achieved(problem: Problem, modal) -> list[dict[str, Any]]:
+    """Target against achieved frequency for every goal, from a certified solve."""
+    rows = []
+    for g in problem.evaluator.goals:
+        if g.family == "strike":
+            logf = sum(a * np.log(modal.frequency("bending", k) / d) for k, d, a in g.components)
+            f = float(np.exp(logf))
+        else:
+            f = modal.frequency(g.family, g.order)
+        rows.append(
+            {
+                "family": g.family,
+                "order": g.order,
+                "target_hz": g.f_hz,
+                "achieved_hz": f,
+                "error_cents": 1200.0 * np.log2(f / g.f_hz),
+                "tolerance_cents": g.tolerance_cents,
+            }
+        )
+    return rows
+
+
+def part_table(problem: Problem, u: np.ndarray) -> dict[str, Any]:
+    """The designed part as a part-file table (mm), ready for TOML or JSON."""
+    pf = problem.part_file
+    out: dict[str, Any] = {}
+    if pf.title:
+        out["title"] = f"{pf.title} (designed)"
+    out["material"] = pf.material
+    space = problem.space
+    L = space.length(u)
+    if pf.bar is not None:
+        stations = station_profile(problem, u)
+        bar: dict[str, Any] = {
+            "length": round(L * 1e3, 6),
+            "width": round(pf.bar.width * 1e3, 6),
+            "thickness": round(pf.bar.thickness * 1e3, 6),
+            "profile": [[round(x * 1e3, 6), round(h * 1e3, 6)] for x, h in stations],
+        }
+        if pf.bar.width_profile:
+            bar["width_profile"] = [[x * 1e3, w * 1e3] for x, w in pf.bar.width_profile]
+        if pf.bar.holes:
+            bar["holes"] = [
+                {
+                    k: v * 1e3
+                    for k, v in (("at", h.at), ("diameter", h.diameter), ("height", h.height))
+                    if v is not None
+                }
+                for h in pf.bar.holes
+            ]
+        out["bar"] = bar
+    elif pf.tube is not None:
+        tube: dict[str, Any] = {
+            "length": round(L * 1e3, 6),
+            "outer_diameter": pf.tube.outer_diameter * 1e3,
+            "wall": pf.tube.wall * 1e3,
+        }
+        if space.wall_range:
+            x = np.linspace(0.0, L, int(np.ceil(L / 1e-3)) + 1)
+            w = space.wall_and_jacobian(u, x)[0]
+            tube["wall_profile"] = [
+                [round(a * 1e3, 6), round(b * 1e3, 6)] for a, b in zip(x, w, strict=True)
+            ]
+        out["tube"] = tube
+    else:
+        s = pf.string
+        x = np.linspace(0.0, L, int(np.ceil(L / 1e-3)) + 1)
+        mu = space.density_and_jacobian(u, x)[0]
+        string: dict[str, Any] = {"length": round(L * 1e3, 6), "tension": s.tension}
+        string["density_profile"] = [
+            [round(a * 1e3, 6), float(f"{b:.9g}")] for a, b in zip(x, mu, strict=True)
+        ]
+        EI = float(problem.blank.bending_stiffness(np.array([0.0]))[0])
+        if EI > 0:
+            string["bending_stiffness"] = EI
+        out["string"] = string
+    if pf.support:
+        out["support"] = [
+            {k: (v * 1e3 if k == "at" else v) for k, v in s.model_dump().items() if v is not None}
+            for s in pf.support
+        ]
+    if pf.model.theory != "timoshenko" or pf.model.tolerance_cents != 0.01:
+        out["model"] = pf.model.model_dump()
+    out["target"] = pf.target
+    return out

@@ -1,0 +1,117 @@
+"""Figures for designs: the side profile with its nodes, and the spectrum against the targets.
+
+Figures are returned as bytes (PNG or SVG) so callers write them atomically; SVG output is
+byte-stable (fixed hash salt, no dates).
+"""
+
+from __future__ import annotations
+
+import io
+from collections.abc import Sequence
+
+import matplotlib
+
+matplotlib.use("Agg")
+import matplotlib.pyplot as plt
+import numpy as np
+
+__all__ = ["FAMILY_STYLE", "figure_bytes", "profile_figure", "spectrum_figure"]
+
+# this tool's own palette: partial families by hue, targets in black
+FAMILY_STYLE = {
+    "bending": "#1b6f8a",
+    "lateral": "#b5651d",
+    "torsion": "#7b4fa0",
+    "axial": "#5a8f29",
+    "transverse": "#1b6f8a",
+}
+
+
+def figure_bytes(fig, fmt: str) -> bytes:
+    buf = io.BytesIO()
+    with plt.rc_context({"svg.hashsalt": "tonewright", "svg.fonttype": "none"}):
+        fig.savefig(buf, format=fmt, dpi=150, metadata={"Date": None} if fmt == "svg" else None)
+    plt.close(fig)
+    return buf.getvalue()
+
+
+def profile_figure(
+    x_mm: np.ndarray,
+    thickness_mm: np.ndarray,
+    blank_mm: float,
+    nodes_mm: Sequence[float],
+    holes: Sequence[tuple[float, float, float]] = (),
+    title: str = "",
+):
+    """Side view (not to scale vertically): flat top, undercut bottom, mode-1 nodes."""
+    fig, ax = plt.subplots(figsize=(9, 3.2))
+    top = np.full_like(x_mm, blank_mm)
+    bottom = blank_mm - thickness_mm
+    ax.fill_between(x_mm, bottom, top, color="#d9c3a5", edgecolor="#5b4630", linewidth=1.0)
+    for i, xn in enumerate(nodes_mm):
+        ax.axvline(
+            xn,
+            color="#1b6f8a",
+            linestyle="--",
+            linewidth=1.0,
+            label="mode-1 node" if i == 0 else None,
+        )
+        ax.annotate(
+            f"{xn:.1f}",
+            (xn, blank_mm),
+            textcoords="offset points",
+            xytext=(2, 4),
+            fontsize=8,
+            color="#1b6f8a",
+        )
+    for xh, d, zh in holes:
+        ax.add_patch(
+            plt.Circle((xh, blank_mm - zh), d / 2, fill=False, color="#333333", linewidth=0.8)
+        )
+    ax.set_xlabel("position along the bar (mm)")
+    ax.set_ylabel("height (mm)")
+    ax.set_xlim(x_mm[0] - 5, x_mm[-1] + 5)
+    ax.set_ylim(-0.1 * blank_mm, 1.35 * blank_mm)
+    ax.set_title(title or "Side profile (undercut facing down)")
+    ax.legend(loc="upper right", fontsize=8, frameon=False)
+    ax.grid(alpha=0.25)
+    fig.tight_layout()
+    return fig
+
+
+def spectrum_figure(
+    modes: Sequence[tuple[str, int, float]],
+    targets: Sequence[tuple[str, float, float]],
+    title: str = "",
+):
+    """Computed modes as stems by family, target partials as black lines with tolerance."""
+    fig, ax = plt.subplots(figsize=(9, 3.2))
+    seen = set()
+    for family, order, f in modes:
+        color = FAMILY_STYLE.get(family, "#555555")
+        label = family if family not in seen else None
+        seen.add(family)
+        height = 1.0 if family in ("bending", "transverse") else 0.6
+        ax.vlines(f, 0, height, color=color, linewidth=2.0, label=label)
+        ax.annotate(
+            f"{family[0].upper()}{order}",
+            (f, height),
+            textcoords="offset points",
+            xytext=(2, 2),
+            fontsize=7,
+            color=color,
+        )
+    for i, (label, f, _tol) in enumerate(targets):
+        ax.axvline(
+            f, color="black", linestyle=":", linewidth=1.0, label="target" if i == 0 else None
+        )
+        ax.annotate(label, (f, 1.12), fontsize=7, rotation=90, va="bottom", ha="right")
+    ax.set_xscale("log")
+    ax.set_ylim(0, 1.6)
+    ax.set_yticks([])
+    ax.set_xlabel("frequency (Hz)")
+    ax.set_title(title or "Partials against targets")
+    ax.legend(loc="upper left", fontsize=8, frameon=False, ncol=5)
+    ax.grid(alpha=0.25, which="both", axis="x")
+    fig.tight_layout()
+    return fig

@@ -1,0 +1,170 @@
+"""Synthesis inputs for a sound preview: which modes a mallet strike excites, how strongly, and
+how long they ring.
+
+Model
+-----
+A short vertical impulse P on the top face at ``(x_s, y_s)`` (``x`` along the part, ``y``
+across the width from the centre line) sets each mode ringing; the preview is the vertical
+velocity of the surface at the listening point ``(x_l, y_l)``. By modal superposition (e.g.
+Meirovitch, L. (2001), *Fundamentals of Vibrations*, ch. 7, from memory), with mode shapes
+``g_k`` and modal masses ``m_k``,
+
+    v(t) = P sum_k a_k exp(-t / tau_k) cos(omega_k t),    a_k = g_k(s) g_k(l) / m_k,
+
+    bending (and string):  g_k = w_k(x),      m_k = int rho A w_k^2 dx   (int mu w_k^2 dx),
+    torsion:               g_k = y theta_k(x), m_k = int rho I_p theta_k^2 dx,
+
+since an impulse off the centre line by ``y`` is a torque ``P y`` and a twist ``theta`` moves
+the surface at ``y`` by ``y theta``. The rotary inertia of bending (a term of order
+(h / wavelength)^2) is left out of ``m_k``: the preview needs levels to a fraction of a dB,
+not better. A round tube struck on its surface is pushed through its axis: no torsion.
+For a uniform free-free Euler-Bernoulli bar, every ``w_k`` normalised to ``int w^2 = L`` is
+2 in magnitude at the ends (Blevins, R.D. (1979), *Formulas for Natural Frequency and Mode
+Shape*, table 8-1, from memory), so a strike and a listener at one end give every bending mode
+the same ``a_k = 4 / (rho A L)``; the tests check this.
+
+Decays: ``tau_k = 1 / (pi f_k eta)`` from the material loss factor (``tonewright.synth``).
+
+Mallets: the contact time of a mallet on a bar sets how far up the partials are excited
+(``tonewright.synth.half_sine_spectrum``): soft yarn about 2 ms, medium about 1 ms, hard
+plastic or rubber about 0.4 ms (common practice, no source; Fletcher & Rossing, *The Physics
+of Musical Instruments*, 2nd ed., 1998, ch. 19 discuss contact times of this order, from
+memory).
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+from numpy.typing import NDArray
+
+from forward import Bar, ModalResult, Part, String, Tube
+from forward.modal import section_coefficients
+from tonewright.errors import InputError
+from tonewright.synth import decay_from_loss_factor
+
+__all__ = [
+    "MALLET_CONTACT_S",
+    "PreviewMode",
+    "excited_families",
+    "mallet_contact_s",
+    "modal_masses",
+    "preview_modes",
+]
+
+MALLET_CONTACT_S = {"soft": 2.0e-3, "medium": 1.0e-3, "hard": 0.4e-3}  # common practice
+_CONTACT_MS_RANGE = (0.05, 20.0)
+_QUADRATURE_POINTS = 2001  # Simpson on this many points: far below a dB for any mode solved
+
+
+@dataclass(frozen=True)
+class PreviewMode:
+    """One mode as the preview plays it: amplitude ``a_k`` (1/kg, signed) and 1/e decay (s)."""
+
+    family: str
+    order: int
+    frequency_hz: float
+    amplitude: float
+    decay_s: float
+
+
+def excited_families(part: Part) -> tuple[str, ...]:
+    """Families a vertical strike on the top face sets ringing."""
+    if isinstance(part, String):
+        return ("transverse",)
+    if isinstance(part, Tube):
+        return ("bending",)
+    return ("bending", "torsion")
+
+
+def mallet_contact_s(choice: str) -> float:
+    """Contact time (s) of ``soft``, ``medium``, ``hard`` or a number of milliseconds."""
+    key = choice.strip().lower()
+    if key in MALLET_CONTACT_S:
+        return MALLET_CONTACT_S[key]
+    try:
+        ms = float(key.removesuffix("ms").strip())
+    except ValueError:
+        ms = float("nan")
+    lo, hi = _CONTACT_MS_RANGE
+    if not lo <= ms <= hi:
+        raise InputError(
+            f"--mallet {choice!r}: choose soft, medium, hard or a contact time of "
+            f"{lo:g} to {hi:g} ms"
+        )
+    return ms * 1e-3
+
+
+def _simpson(y: NDArray[np.float64], x: NDArray[np.float64]) -> NDArray[np.float64]:
+    """Composite Simpson rule along the last axis on an odd number of equal steps."""
+    h = x[1] - x[0]
+    w = np.ones(x.size)
+    w[1:-1:2], w[2:-1:2] = 4.0, 2.0
+    return (h / 3.0) * (y @ w)
+
+
+def modal_masses(part: Part, result: ModalResult) -> NDArray[np.float64]:
+    """``m_k`` of every mode of ``result`` with its shape as ``Mode.shape`` returns it."""
+    x = np.linspace(0.0, part.length, _QUADRATURE_POINTS)
+    c = section_coefficients(part, x)
+    out = np.empty(len(result.modes))
+    for i, mode in enumerate(result.modes):
+        if mode.family == "torsion":
+            density = c["rhoIp"]
+        elif mode.family == "transverse":
+            density = c["mu"]
+        else:
+            density = c["rhoA"]
+        out[i] = _simpson(density * mode.shape(x) ** 2, x)
+    return out
+
+
+def _check_point(part: Part, x: float, y: float, what: str) -> None:
+    L = part.length
+    if not 0.0 <= x <= L:
+        raise InputError(f"--{what}-at {x * 1e3:g} mm: must lie on the part, 0 to {L * 1e3:g} mm")
+    if isinstance(part, Bar):
+        half = 0.5 * float(part.width(np.array([x]))[0])
+        if abs(y) > half:
+            raise InputError(
+                f"--{what}-offset {y * 1e3:g} mm: must lie on the bar, within "
+                f"{half * 1e3:g} mm of the centre line there"
+            )
+
+
+def preview_modes(
+    part: Part,
+    result: ModalResult,
+    strike: tuple[float, float],
+    listen: tuple[float, float],
+    loss_factor: float,
+) -> tuple[PreviewMode, ...]:
+    """Amplitudes and decays of the modes in ``result`` that a strike excites.
+
+    ``strike`` and ``listen`` are ``(x, y)`` in metres; ``y`` counts only for torsion.
+    """
+    _check_point(part, *strike, "strike")
+    _check_point(part, *listen, "listen")
+    if not 0.0 < loss_factor < 1.0:
+        raise InputError(f"loss factor {loss_factor:g}: must lie between 0 and 1")
+    families = excited_families(part)
+    modes = [m for m in result.modes if m.family in families]
+    masses = modal_masses(part, result)
+    mass_of = {id(m): mk for m, mk in zip(result.modes, masses, strict=True)}
+    out = []
+    for m in modes:
+        g_s = float(m.shape(np.array([strike[0]]))[0])
+        g_l = float(m.shape(np.array([listen[0]]))[0])
+        if m.family == "torsion":
+            g_s, g_l = strike[1] * g_s, listen[1] * g_l
+        out.append(
+            PreviewMode(
+                family=m.family,
+                order=m.order,
+                frequency_hz=m.frequency_hz,
+                amplitude=g_s * g_l / mass_of[id(m)],
+                decay_s=float(decay_from_loss_factor(m.frequency_hz, loss_factor)),
+            )
+        )
+    return tuple(out)

@@ -1,0 +1,70 @@
+"""Cut table: thickness to leave and depth of cut at regular stations along the bar (CSV).
+
+Columns (millimetres, ``x`` from the bar's left end):
+
+- ``thickness_to_leave_mm``: ``t(x)``, measured from the flat top face;
+- ``depth_of_cut_mm``: ``T - t(x)``, measured from the blank's bottom face (the undercut face)
+  up into the bar, ``T`` being the blank thickness.
+
+Stations: every ``spacing_mm`` from 0 plus the profile's own breakpoints (``kind = design``),
+so linear interpolation between consecutive rows reproduces the profile exactly.
+"""
+
+from __future__ import annotations
+
+import math
+
+import numpy as np
+
+from tonewright.errors import InputError
+from tonewright.shop.cautions import comment_lines
+from tonewright.shop.part import ShopPart
+
+__all__ = ["cut_table_csv", "cut_table_rows"]
+
+
+def cut_table_rows(
+    part: ShopPart, spacing_mm: float = 5.0
+) -> list[tuple[float, float, float, str]]:
+    """``(x_mm, thickness_to_leave_mm, depth_of_cut_mm, kind)`` rows in increasing ``x``."""
+    L = part.length_m * 1000.0
+    s = float(spacing_mm)
+    if not math.isfinite(s) or s <= 0 or s > L:
+        raise InputError(f"spacing_mm: {spacing_mm!r} must be > 0 and <= the bar length {L:g} mm")
+    design = np.asarray(part.stations_x_m) * 1000.0
+    grid = np.arange(0, math.floor(L / s + 1e-9) + 1) * s
+    xs = np.concatenate((design, grid))
+    kinds = np.concatenate((np.zeros(design.size, bool), np.ones(grid.size, bool)))
+    order = np.lexsort((kinds, xs))  # design rows first where positions coincide
+    xs, kinds = xs[order], kinds[order]
+    keep = np.concatenate(([True], np.diff(xs) > 1e-6))
+    xs, kinds = xs[keep], kinds[keep]
+    T = part.blank_thickness_m * 1000.0
+    t = part.thickness_m(xs / 1000.0) * 1000.0
+    return [
+        (float(x), float(ti), float(T - ti), "grid" if k else "design")
+        for x, ti, k in zip(xs, t, kinds, strict=True)
+    ]
+
+
+def cut_table_csv(part: ShopPart, spacing_mm: float = 5.0) -> str:
+    """The cut table as CSV text with ``#`` comment lines (units, definitions, cautions)."""
+    rows = cut_table_rows(part, spacing_mm)
+    T = part.blank_thickness_m * 1000.0
+    head = [
+        f"# tonewright cut table: {part.title}",
+        f"# material: {part.material_name or 'not given'}; {part.grain_note}",
+        f"# blank {part.length_m * 1000:.2f} x {part.width_m * 1000:.2f} x {T:.2f} mm "
+        "(length x width x thickness)",
+        "# units: millimetres; station_mm from the left end of the bar",
+        "# thickness_to_leave_mm: bar thickness measured from the flat top face",
+        "# depth_of_cut_mm: material to remove, measured from the blank's bottom face "
+        "(the undercut face) = blank thickness - thickness to leave",
+        f"# stations every {spacing_mm:g} mm plus the design's own breakpoints (kind = design);",
+        "# the profile is straight between consecutive rows",
+        *(f"# note: {n}" for n in part.notes),
+        *comment_lines("# ", 90),
+    ]
+    lines = [*head, "station_mm,thickness_to_leave_mm,depth_of_cut_mm,kind"]
+    lines += [f"{x:.2f},{t:.2f},{d:.2f},{k}" for x, t, d, k in rows]
+    return "\n".join(lines) + "\n"

@@ -1,0 +1,246 @@
+"""What the shop outputs consume: one bar, its undercut profile, holes, nodes and partials.
+
+Geometry convention (shared by every shop output):
+
+- ``x`` runs along the bar from its left end (0) to its right end (``length_m``);
+- the top face is flat; the undercut is on the bottom face;
+- the thickness to leave, ``t(x)``, is measured from the top face and is piecewise linear
+  between the stations ``(stations_x_m, stations_thickness_m)``;
+- in side views the blank's bottom face is at height 0 and its top face at ``T`` (the blank
+  thickness), so the bar's bottom surface is at ``T - t(x)``; ``T - t(x)`` is also the depth
+  of cut measured from the blank's bottom face;
+- a hole ``(x, diameter, height)`` is drilled across the width; ``height`` is its centre above
+  the bar's bottom surface at ``x`` (the same convention as ``forward.geometry.Hole``).
+
+All lengths are metres here; outputs convert to millimetres.
+"""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Sequence
+from dataclasses import dataclass
+
+import numpy as np
+
+from tonewright.errors import InputError
+
+__all__ = ["ShopPart", "demo_part"]
+
+# Station positions closer than this to 0 or L count as the end (floating-point slack).
+_END_SLACK_M = 1e-9
+
+
+def _positive(name: str, value: object) -> float:
+    try:
+        v = float(value)  # type: ignore[arg-type]
+    except (TypeError, ValueError):
+        raise InputError(f"{name}: {value!r} is not a number; give a length in metres") from None
+    if not math.isfinite(v) or v <= 0:
+        raise InputError(f"{name}: {value!r} must be a positive finite length in metres")
+    return v
+
+
+def _number(name: str, value: object) -> float:
+    try:
+        v = float(value)  # type: ignore[arg-type]
+    except (TypeError, ValueError):
+        raise InputError(f"{name}: {value!r} is not a number") from None
+    if not math.isfinite(v):
+        raise InputError(f"{name}: {value!r} must be finite")
+    return v
+
+
+def _floats(name: str, values: object) -> tuple[float, ...]:
+    try:
+        out = tuple(float(v) for v in values)  # type: ignore[union-attr]
+    except (TypeError, ValueError):
+        raise InputError(f"{name}: {values!r} must be a sequence of numbers") from None
+    if not all(math.isfinite(v) for v in out):
+        raise InputError(f"{name}: {values!r} contains a non-finite value")
+    return out
+
+
+@dataclass(frozen=True)
+class ShopPart:
+    """A bar ready for the shop: validated at construction, immutable afterwards.
+
+    ``holes``: ``(x_m, diameter_m, height_m)`` with the height of the hole centre above the
+    bar's bottom surface at ``x_m``. ``partials``: ``(label, target_hz or None, predicted_hz)``.
+    """
+
+    title: str
+    length_m: float
+    width_m: float
+    blank_thickness_m: float
+    stations_x_m: tuple[float, ...]
+    stations_thickness_m: tuple[float, ...]
+    holes: tuple[tuple[float, float, float], ...] = ()
+    node_positions_m: tuple[float, ...] = ()
+    node_tolerance_m: float = 0.0
+    material_name: str = ""
+    grain_note: str = "grain along the length"
+    partials: tuple[tuple[str, float | None, float], ...] = ()
+    notes: tuple[str, ...] = ()
+
+    def __post_init__(self) -> None:
+        put = object.__setattr__
+        if not isinstance(self.title, str) or not self.title.strip():
+            raise InputError(f"title: {self.title!r} must be a non-empty text")
+        L = _positive("length_m", self.length_m)
+        W = _positive("width_m", self.width_m)
+        T = _positive("blank_thickness_m", self.blank_thickness_m)
+        put(self, "length_m", L)
+        put(self, "width_m", W)
+        put(self, "blank_thickness_m", T)
+
+        xs = _floats("stations_x_m", self.stations_x_m)
+        ts = _floats("stations_thickness_m", self.stations_thickness_m)
+        if len(xs) < 2:
+            raise InputError(f"stations_x_m: {len(xs)} station(s) given; need at least 2 (0 and L)")
+        if len(ts) != len(xs):
+            raise InputError(
+                f"stations_thickness_m: {len(ts)} values for {len(xs)} stations; give one each"
+            )
+        steps = np.diff(xs)
+        if np.any(steps <= 0):
+            i = int(np.argmax(steps <= 0))
+            raise InputError(
+                f"stations_x_m: {xs[i + 1]!r} after {xs[i]!r}; positions must increase strictly"
+            )
+        if abs(xs[0]) > _END_SLACK_M or abs(xs[-1] - L) > _END_SLACK_M:
+            raise InputError(
+                f"stations_x_m: span {xs[0]!r}..{xs[-1]!r} m must run from 0 to length_m={L!r}"
+            )
+        xs = (0.0, *xs[1:-1], L)  # snap the ends exactly
+        for i, t in enumerate(ts):
+            if t <= 0 or t > T * (1 + 1e-12):
+                raise InputError(
+                    f"stations_thickness_m[{i}]: {t!r} m must be > 0 and <= blank_thickness_m={T!r}"
+                )
+        put(self, "stations_x_m", xs)
+        put(self, "stations_thickness_m", tuple(min(t, T) for t in ts))
+
+        holes = []
+        for i, hole in enumerate(self.holes):
+            values = _floats(f"holes[{i}]", hole)
+            if len(values) != 3:
+                raise InputError(f"holes[{i}]: {hole!r} must be (x_m, diameter_m, height_m)")
+            hx, hd, hh = values
+            holes.append((hx, hd, hh))
+            self._check_hole(i, hx, hd, hh)
+        put(self, "holes", tuple(holes))
+
+        nodes = _floats("node_positions_m", self.node_positions_m)
+        for i, n in enumerate(nodes):
+            if not 0 <= n <= L:
+                raise InputError(f"node_positions_m[{i}]: {n!r} m must lie within 0..{L!r}")
+        put(self, "node_positions_m", nodes)
+        tol = _number("node_tolerance_m", self.node_tolerance_m)
+        if tol < 0:
+            raise InputError(f"node_tolerance_m: {self.node_tolerance_m!r} must be >= 0 metres")
+        put(self, "node_tolerance_m", tol)
+
+        for name in ("material_name", "grain_note"):
+            if not isinstance(getattr(self, name), str):
+                raise InputError(f"{name}: {getattr(self, name)!r} must be text")
+
+        partials = []
+        for i, item in enumerate(self.partials):
+            if not isinstance(item, tuple | list) or len(item) != 3 or not isinstance(item[0], str):
+                raise InputError(
+                    f"partials[{i}]: {item!r} must be (label, target_hz or None, predicted_hz)"
+                )
+            label, target, predicted = item
+            if target is not None:
+                target = _number(f"partials[{i}] target_hz", target)
+                if target <= 0:
+                    raise InputError(f"partials[{i}] target_hz: {target!r} must be > 0 or None")
+            predicted = _number(f"partials[{i}] predicted_hz", predicted)
+            if predicted <= 0:
+                raise InputError(f"partials[{i}] predicted_hz: {predicted!r} must be > 0")
+            partials.append((label, target, predicted))
+        put(self, "partials", tuple(partials))
+
+        notes = (self.notes,) if isinstance(self.notes, str) else self.notes
+        if not all(isinstance(n, str) for n in notes):
+            raise InputError(f"notes: {self.notes!r} must be lines of text")
+        put(self, "notes", tuple(notes))
+
+    def _check_hole(self, i: int, hx: float, hd: float, hh: float) -> None:
+        L = self.length_m
+        if hd <= 0:
+            raise InputError(f"holes[{i}] diameter: {hd!r} m must be positive")
+        if hx - hd / 2 < 0 or hx + hd / 2 > L:
+            raise InputError(f"holes[{i}] x: {hx!r} m puts the hole outside the bar (0..{L!r})")
+        # The hole's circle (side view) must stay inside the material at every point.
+        phi = np.linspace(0.0, 2 * np.pi, 73)
+        px = hx + 0.5 * hd * np.cos(phi)
+        pz = self.bottom_surface_m(hx) + hh + 0.5 * hd * np.sin(phi)
+        if np.any(pz <= self.bottom_surface_m(px)) or np.any(pz >= self.blank_thickness_m):
+            raise InputError(
+                f"holes[{i}] height: {hh!r} m (diameter {hd!r} m at x={hx!r} m) breaks through a "
+                "face; the hole must lie inside the bar"
+            )
+
+    # --- geometry along the bar (vectorised; x in metres) ---------------------------------
+    def thickness_m(self, x: np.ndarray | float) -> np.ndarray:
+        """Thickness to leave at ``x`` (piecewise linear between the stations)."""
+        return np.interp(x, self.stations_x_m, self.stations_thickness_m)
+
+    def depth_m(self, x: np.ndarray | float) -> np.ndarray:
+        """Depth of cut at ``x`` measured from the blank's bottom face: ``T - t(x)``."""
+        return self.blank_thickness_m - self.thickness_m(x)
+
+    def bottom_surface_m(self, x: np.ndarray | float) -> np.ndarray:
+        """Height of the bar's bottom surface above the blank's bottom face (same as depth)."""
+        return self.depth_m(x)
+
+    @property
+    def breakpoints_m(self) -> np.ndarray:
+        return np.asarray(self.stations_x_m)
+
+    @property
+    def min_thickness_m(self) -> float:
+        return float(min(self.stations_thickness_m))
+
+    @property
+    def file_stem(self) -> str:
+        """A file-name-safe version of the title."""
+        keep = "".join(c if c.isalnum() else "_" for c in self.title.strip().lower())
+        return "_".join(part for part in keep.split("_") if part) or "part"
+
+
+def demo_part(
+    title: str = "Demo bar F3 (workshop sample)",
+    stations: Sequence[float] | None = None,
+) -> ShopPart:
+    """An invented demo: a 380 x 50 x 20 mm padauk-like bar undercut to 6 mm.
+
+    The profile is a smooth arch between x = 90 and 290 mm sampled at 10 mm; nodes and holes
+    sit just outside it, near 0.21 L, roughly where an undercut bar's mode-1 nodes lie.
+    Invented data for examples and tests only: a real design comes from the forward model.
+    """
+    L, T, t_min = 0.380, 0.020, 0.006
+    if stations is None:
+        x_in = np.arange(0.090, 0.2900001, 0.010)
+        stations = np.concatenate(([0.0], x_in, [L]))
+    x = np.asarray(stations, dtype=float)
+    u = np.clip((x - 0.090) / 0.200, 0.0, 1.0)  # 0..1 across the arch
+    t = T - (T - t_min) * np.sin(np.pi * u) ** 1.5
+    nodes = (0.0805, L - 0.0805)
+    return ShopPart(
+        title=title,
+        length_m=L,
+        width_m=0.050,
+        blank_thickness_m=T,
+        stations_x_m=tuple(x),
+        stations_thickness_m=tuple(t),
+        holes=tuple((n, 0.005, 0.010) for n in nodes),
+        node_positions_m=nodes,
+        node_tolerance_m=0.001,
+        material_name="padauk-like hardwood (demo)",
+        grain_note="grain along the length",
+        partials=(("f1", 174.61, 174.9), ("f2", 698.46, 697.1), ("f3", 1746.1, 1752.0)),
+        notes=("Invented demo bar for examples and tests.",),
+    )
