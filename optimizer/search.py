@@ -172,8 +172,9 @@ def _verdict(evaluator: Evaluator, u: np.ndarray) -> tuple[bool, int, str, tuple
         )
         if not binding:
             binding = [
-                "no shop limit: the shape cannot reach these ratios; try more control "
-                "points, a free length, or another blank"
+                "no single limit: the shape cannot reach these ratios within its cut "
+                "region; try more control points, shorter uncut ends, a free length or "
+                "another blank"
             ]
         return False, 1, msg, tuple(binding)
     if np.any(ev.clearance_violation > 0):

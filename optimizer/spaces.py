@@ -274,11 +274,6 @@ class BarUndercut:
             lo, hi = self.length_range
             if L <= lo + 0.02 * (hi - lo) or L >= hi - 0.02 * (hi - lo):
                 out.append(f"length range ({lo * 1e3:g} to {hi * 1e3:g} mm)")
-        e = self.cut_edge(L)
-        if e > 0 and (self.end_keep > 0 or self.node_zone > 0):
-            out.append(
-                f"uncut ends/node zones (cut confined to {e * 1e3:.0f}..{(L - e) * 1e3:.0f} mm)"
-            )
         if self.cutter_radius > 0 and self.curvature_margin(u) < 0.05 / self.cutter_radius:
             out.append(f"cutter radius ({self.cutter_radius * 1e3:g} mm)")
         return out

@@ -209,7 +209,7 @@ def station_profile(problem: Problem, u: np.ndarray, spacing: float = 1e-3) -> n
     kinks = space.kinks(u)
     eps = 1e-6
     extra = np.concatenate([kinks - eps, kinks + eps]) if space.shape == "steps" else kinks
-    x = np.unique(np.concatenate([x, extra[(extra > 0) & (extra < L)]]))
+    x = np.unique(np.round(np.concatenate([x, extra[(extra > 0) & (extra < L)]]), 9))
     h = space.blank_thickness - space.depth_and_jacobian(u, x)[0]
     return np.column_stack([x, h])
 

@@ -19,6 +19,8 @@ def from_validation_error(exc: ValidationError, where: str) -> InputError:
         joiner = ": " if where.endswith((".toml", ".json")) else "."
         field_name = f"{where}{joiner}{loc}" if loc else where
         msg = err["msg"].removeprefix("Value error, ")
-        got = "" if err["type"] == "missing" or not loc else f" (got {err['input']!r})"
+        shown = repr(err["input"])
+        shown = shown if len(shown) <= 60 else shown[:57] + "..."
+        got = "" if err["type"] == "missing" or not loc else f" (got {shown})"
         parts.append(f"{field_name}: {msg}{got}")
     return InputError("; ".join(parts))

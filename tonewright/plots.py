@@ -10,6 +10,7 @@ import io
 from collections.abc import Sequence
 
 import matplotlib
+import matplotlib.ticker
 
 matplotlib.use("Agg")
 import matplotlib.pyplot as plt
@@ -107,6 +108,8 @@ def spectrum_figure(
         )
         ax.annotate(label, (f, 1.12), fontsize=7, rotation=90, va="bottom", ha="right")
     ax.set_xscale("log")
+    ax.xaxis.set_major_formatter(matplotlib.ticker.FuncFormatter(lambda v, _: f"{v:g}"))
+    ax.xaxis.set_minor_formatter(matplotlib.ticker.NullFormatter())
     ax.set_ylim(0, 1.6)
     ax.set_yticks([])
     ax.set_xlabel("frequency (Hz)")

@@ -201,8 +201,9 @@ def _print_summary(console: Console, payload: dict, out: Path) -> None:
     for m in near:
         flag = "clear" if m["clear"] else "TOO NEAR"
         console.print(
-            f"  {m['family']} {m['order']} at {m['frequency_hz']:.1f} Hz: {m['gap_hz']:.1f} Hz from "
-            f"{m['nearest_partial']} (keep {m['keep_clear_hz']:.0f} Hz clear): {flag}"
+            f"  {m['family']} {m['order']} at {m['frequency_hz']:.1f} Hz: "
+            f"{m['gap_hz']:.1f} Hz from {m['nearest_partial']} "
+            f"(keep {m['keep_clear_hz']:.0f} Hz clear): {flag}"
         )
     summary = payload["design"]["summary"]
     console.print("  " + ", ".join(f"{k.replace('_', ' ')} {v:.2f}" for k, v in summary.items()))
