@@ -11,7 +11,8 @@
 3. Verdict: converged when every goal is within tolerance, unwanted modes are clear and the
    cutter fits. Otherwise the closest design is returned with the limits that bind: variables
    pressed against their bounds, the clearance band, or the cutter radius.
-Restarts (new seed, full step size) are tried while the evaluation budget lasts.
+Restarts (new seed and start, full step size, a stricter hand-over) are tried while the
+evaluation budget lasts.
 """
 
 from __future__ import annotations
@@ -69,10 +70,10 @@ def _global_search(
     seed: int,
     budget: int,
     progress: Progress | None,
+    handover: float,
 ) -> np.ndarray:
     space = evaluator.space
     radius = getattr(space, "cutter_radius", 0.0)
-    handover = settings.handover_cents
 
     def fitness(u: np.ndarray) -> tuple[float, Evaluation, bool]:
         ev = evaluator.evaluate(u)
@@ -223,8 +224,11 @@ def design(
         remaining = settings.budget - evaluator.solves
         if remaining <= 0:
             break
+        # each restart searches longer before handing over: a polish that stalled (usually on
+        # an unwanted mode's band) needs a start closer to a feasible basin
+        handover = settings.handover_cents / 4.0**attempt
         u = _global_search(
-            evaluator, x0, settings, settings.seed + 1000 * attempt, remaining, progress
+            evaluator, x0, settings, settings.seed + 1000 * attempt, remaining, progress, handover
         )
         u = _polish(evaluator, u, settings, progress)
         ok, status, _, _ = _verdict(evaluator, u)

@@ -1,0 +1,136 @@
+"""End-to-end: `tonewright design` on the bundled demo, its written part reproduced by
+`tonewright modes`, `tonewright shop` on the result, and the error paths."""
+
+from __future__ import annotations
+
+import json
+import shutil
+from pathlib import Path
+
+import numpy as np
+import pytest
+from typer.testing import CliRunner
+
+from tonewright.cli import app
+
+EXAMPLES = Path(__file__).resolve().parents[1] / "examples"
+runner = CliRunner()
+
+
+@pytest.fixture(scope="module")
+def demo(tmp_path_factory):
+    out = tmp_path_factory.mktemp("demo") / "out"
+    result = runner.invoke(
+        app, ["design", str(EXAMPLES / "workshop-marimba-c4.toml"), "--out", str(out)]
+    )
+    return result, out
+
+
+def test_demo_design_meets_its_target(demo):
+    result, out = demo
+    assert result.exit_code == 0, result.output
+    payload = json.loads((out / "result.json").read_text())
+    assert payload["converged"] is True
+    assert {"part", "partials", "converged"} <= set(payload)
+    for row in payload["partials"]:
+        assert {"family", "order", "target_hz", "achieved_hz", "error_cents"} <= set(row)
+        assert abs(row["error_cents"]) <= row["tolerance_cents"]
+    # marimba 1:4:10 at C4 = 261.626 Hz (equal temperament, A4 = 440 Hz)
+    targets = [r["target_hz"] for r in payload["partials"]]
+    assert np.allclose(targets, 261.6256 * np.array([1, 4, 10]), rtol=1e-6)
+    for name in ("part.toml", "profile.png", "profile.svg", "spectrum.png", "spectrum.svg"):
+        assert (out / name).stat().st_size > 0
+
+
+def test_written_part_reproduces_the_result(demo):
+    _, out = demo
+    payload = json.loads((out / "result.json").read_text())
+    modes = runner.invoke(app, ["modes", str(out / "part.toml"), "--json", "--count", "3"])
+    assert modes.exit_code == 0, modes.output
+    found = {
+        (m["family"], m["order"]): m["frequency_hz"] for m in json.loads(modes.output)["modes"]
+    }
+    for row in payload["partials"]:
+        f = found[(row["family"], row["order"])]
+        assert abs(1200 * np.log2(f / row["achieved_hz"])) < 0.01  # same model, same file
+    # stations at 1 mm spacing or finer
+    profile = payload["part"]["bar"]["profile"]
+    assert np.max(np.diff([p[0] for p in profile])) <= 1.0 + 1e-9
+
+
+def test_result_json_is_a_part_file_too(demo):
+    _, out = demo
+    modes = runner.invoke(app, ["modes", str(out / "result.json"), "--json"])
+    assert modes.exit_code == 0, modes.output
+
+
+def test_refuses_to_overwrite_without_force(demo):
+    _, out = demo
+    again = runner.invoke(
+        app, ["design", str(EXAMPLES / "workshop-marimba-c4.toml"), "--out", str(out)]
+    )
+    assert again.exit_code == 2
+    assert "--force" in again.output
+
+
+@pytest.mark.slow
+def test_shop_outputs_from_the_design(demo, tmp_path):
+    _, out = demo
+    shop = runner.invoke(app, ["shop", str(out / "result.json"), "--out", str(tmp_path / "shop")])
+    assert shop.exit_code == 0, shop.output
+    names = sorted(p.name for p in (tmp_path / "shop").iterdir())
+    assert any(n.endswith(".dxf") for n in names)
+    assert any(n.endswith("_undercut.nc") for n in names)
+    assert any(n.endswith("_template.pdf") for n in names)
+    gcode = next((tmp_path / "shop").glob("*.nc")).read_text()
+    assert "G21" in gcode and "M30" in gcode and "dust" in gcode.lower()
+
+
+def _write(tmp_path: Path, text: str) -> Path:
+    path = tmp_path / "part.toml"
+    path.write_text(text)
+    return path
+
+
+def test_missing_target_is_a_clear_error(tmp_path):
+    path = _write(
+        tmp_path, 'material = "sugar-maple"\n[bar]\nlength = 300\nwidth = 40\nthickness = 20\n'
+    )
+    result = runner.invoke(app, ["design", str(path), "--out", str(tmp_path / "o")])
+    assert result.exit_code == 2
+    assert "target" in result.output and "Traceback" not in result.output
+
+
+def test_unreachable_target_exits_nonzero_and_names_the_limit(tmp_path):
+    text = (EXAMPLES / "workshop-marimba-c4.toml").read_text()
+    text = text.replace('fundamental = "C4"', 'fundamental = "C6"')  # far above the blank
+    path = _write(tmp_path, text + "budget = 300\n")
+    result = runner.invoke(app, ["design", str(path), "--out", str(tmp_path / "o")])
+    assert result.exit_code == 1, result.output
+    payload = json.loads((tmp_path / "o" / "result.json").read_text())
+    assert payload["converged"] is False and "out of reach" in payload["message"]
+    assert payload["binding_limits"]
+
+
+def test_bad_design_table_is_one_line(tmp_path):
+    text = (EXAMPLES / "workshop-marimba-c4.toml").read_text() + "min_thikness = 4\n"
+    path = _write(tmp_path, text)
+    result = runner.invoke(app, ["design", str(path), "--out", str(tmp_path / "o")])
+    assert result.exit_code == 2
+    assert "design.min_thikness" in result.output
+    assert len(result.output.strip().splitlines()) == 1
+
+
+@pytest.mark.slow
+def test_design_same_seed_same_files(tmp_path):
+    src = tmp_path / "p.toml"
+    shutil.copy(EXAMPLES / "workshop-marimba-c4.toml", src)
+    a = runner.invoke(app, ["design", str(src), "--out", str(tmp_path / "a"), "--seed", "2"])
+    b = runner.invoke(app, ["design", str(src), "--out", str(tmp_path / "b"), "--seed", "2"])
+    assert a.exit_code == b.exit_code == 0
+    assert (tmp_path / "a" / "part.toml").read_bytes() == (
+        tmp_path / "b" / "part.toml"
+    ).read_bytes()
+    assert (tmp_path / "a" / "profile.svg").read_bytes() == (
+        tmp_path / "b" / "profile.svg"
+    ).read_bytes()
