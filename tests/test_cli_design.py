@@ -101,6 +101,7 @@ def test_missing_target_is_a_clear_error(tmp_path):
     assert "target" in result.output and "Traceback" not in result.output
 
 
+@pytest.mark.slow
 def test_unreachable_target_exits_nonzero_and_names_the_limit(tmp_path):
     text = (EXAMPLES / "workshop-marimba-c4.toml").read_text()
     text = text.replace('fundamental = "C4"', 'fundamental = "C6"')  # far above the blank

@@ -216,6 +216,7 @@ def test_unreachable_target_is_reported_with_binding_limit():
     assert any("minimum thickness" in b for b in result.binding)
 
 
+@pytest.mark.slow
 def test_clearance_of_unwanted_modes_is_checked():
     # keep-clear band of half a critical bandwidth each side (Zwicker & Terhardt, 1980)
     from tonewright.pitch import critical_bandwidth_hz
