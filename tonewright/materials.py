@@ -39,6 +39,8 @@ import numpy as np
 from pydantic import BaseModel, ConfigDict, Field, ValidationError, model_validator
 
 from forward.geometry import Material
+from forward.orthotropic import Orthotropic as SolidMaterial
+from forward.orthotropic import isotropic as solid_isotropic
 from tonewright.errors import InputError, from_validation_error
 
 __all__ = [
@@ -138,6 +140,36 @@ class MaterialSpec:
     def to_beam(self) -> Material:
         """The beam model's material (all SI)."""
         return Material(E=self.E, G=self.G, rho=self.rho, nu=self.nu, loss_factor=self.loss_factor)
+
+    def to_solid(self, thickness_axis: str = "T") -> SolidMaterial:
+        """The 2D/3D models' material: the full orthotropic set for wood, isotropic for metals.
+
+        ``thickness_axis`` "T" (quarter-sawn, rings vertical seen end-on) or "R" (flat-sawn).
+        """
+        o = self.orthotropic
+        if o is not None:
+            return SolidMaterial(
+                o.E_L,
+                o.E_R,
+                o.E_T,
+                o.G_LR,
+                o.G_LT,
+                o.G_RT,
+                o.nu_LR,
+                o.nu_LT,
+                o.nu_RT,
+                self.rho,
+                thickness_axis,
+            )
+        if (
+            self.kind in ("metal", "isotropic")
+            or abs(self.G - isotropic_shear_modulus(self.E, self.nu)) <= 0.02 * self.G
+        ):
+            return solid_isotropic(self.E, self.nu, self.rho)
+        raise InputError(
+            f"material {self.name!r} has no orthotropic data for the 2D/3D models: "
+            "give base = '<library wood>' in [material] so its ratios can be used"
+        )
 
 
 # ---------------------------------------------------------------------------------------------
