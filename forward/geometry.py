@@ -74,6 +74,9 @@ class Material:
     ``E`` and ``G`` in Pa, ``rho`` in kg/m^3. For wood, ``E`` is E_L (along the grain) and
     ``G`` is G_LT, the shear modulus that governs vertical bending shear and torsion.
     ``loss_factor`` (dimensionless) sets modal damping for sound previews only.
+    ``shear_ratio`` is G_xy / G_xz, the shear modulus in the plane of the width over the one in
+    the vertical plane (wood, quarter-sawn: G_LR / G_LT; isotropic: 1). It sets lateral-bending
+    shear and the torsion of a wide orthotropic section (``forward.sections``).
     """
 
     E: float
@@ -81,6 +84,7 @@ class Material:
     rho: float
     nu: float = 0.3
     loss_factor: float = 0.01
+    shear_ratio: float = 1.0
 
     def __post_init__(self) -> None:
         for name in ("E", "G", "rho"):

@@ -86,14 +86,20 @@ def bar_coefficients(
     G: float,
     rho: float,
     nu: float,
+    shear_ratio: float = 1.0,
 ) -> dict[str, np.ndarray]:
-    """Beam coefficients of a rectangular bar (complex-safe for complex-step derivatives)."""
-    s = rectangle_section(b, h, chord, z_hole)
+    """Beam coefficients of a rectangular bar (complex-safe for complex-step derivatives).
+
+    Vertical bending shears in the x-z plane (G); lateral bending and most of the twist of a
+    wide section shear in the x-y plane (shear_ratio * G).
+    """
+    s = rectangle_section(b, h, chord, z_hole, shear_ratio)
     kGA = cowper_rectangle(nu) * G * s["A"]
     return {
         "EIy": E * s["Iy"],
         "EIz": E * s["Iz"],
         "kGA": kGA,
+        "kGAz": shear_ratio * kGA,
         "rhoA": rho * s["A"],
         "rhoIy": rho * s["Iy"],
         "rhoIz": rho * s["Iz"],
@@ -122,7 +128,9 @@ def section_coefficients(part: Part, x: np.ndarray) -> dict[str, np.ndarray]:
     if isinstance(part, Bar):
         m = part.material
         chord, z = hole_data(part, x)
-        return bar_coefficients(part.width(x), part.thickness(x), chord, z, m.E, m.G, m.rho, m.nu)
+        return bar_coefficients(
+            part.width(x), part.thickness(x), chord, z, m.E, m.G, m.rho, m.nu, m.shear_ratio
+        )
     if isinstance(part, Tube):
         m = part.material
         D = part.outer_diameter(x)
@@ -240,7 +248,7 @@ def _family_terms(
             zw, zt = np.zeros_like(Fw[0]), np.zeros_like(Ft[0])
             stiffness = [
                 Term("EI" + suffix, np.hstack([zw, Ft[1]])),
-                Term("kGA", np.hstack([Fw[1], -Ft[0]])),
+                Term("kGA" if family == "bending" else "kGAz", np.hstack([Fw[1], -Ft[0]])),
             ]
             mass = [
                 Term("rhoA", np.hstack([Fw[0], zt])),

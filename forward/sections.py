@@ -12,6 +12,13 @@ Torsion constant of a solid rectangle, long side a, short side t (Timoshenko & G
     J = a t^3 / 3 * (1 - (192 t / (pi^5 a)) sum_{n odd} tanh(n pi a / (2 t)) / n^5).
 A drilled section is treated as a rectangle of the remaining height (a short-span
 approximation; holes sit in uncut zones near the nodes where twist is small).
+Orthotropic section (shear modulus G_xz in the vertical plane, G_xy = r G_xz across the width):
+the stress-function equation (1/G_xz) phi_yy + (1/G_xy) phi_zz = -2 theta becomes the
+isotropic one on the rectangle stretched to b / sqrt(r) (Lekhnitskii, S. G., 1981, *Theory of
+Elasticity of an Anisotropic Body*, sec. on torsion of orthotropic bars), so that
+    G_xz J_eff = G_xz r^(3/2) J(b / sqrt(r), t),
+which tends to G_xy b t^3 / 3 for a thin wide strip. A wide wooden bar twists mostly in its
+width plane (G_LR for a quarter-sawn bar), not in the vertical plane (G_LT).
 
 Round tube, outer diameter D, inner d = D - 2 wall:
     A = pi (D^2 - d^2)/4,  I = pi (D^4 - d^4)/64,  J = I_p = 2 I (exact for a circular tube).
@@ -76,11 +83,16 @@ def hole_chord(x: np.ndarray, x_hole: float, diameter: float) -> np.ndarray:
 
 
 def rectangle_section(
-    b: np.ndarray, h: np.ndarray, chord: np.ndarray | float = 0.0, z_hole: np.ndarray | float = 0.0
+    b: np.ndarray,
+    h: np.ndarray,
+    chord: np.ndarray | float = 0.0,
+    z_hole: np.ndarray | float = 0.0,
+    shear_ratio: float = 1.0,
 ) -> dict[str, np.ndarray]:
     """Section properties of a b x h rectangle minus a b x chord strip centred at z_hole.
 
-    Returns A, Iy (vertical bending), Iz (lateral bending), Ip (polar) and J (torsion).
+    Returns A, Iy (vertical bending), Iz (lateral bending), Ip (polar) and J (torsion, to be
+    multiplied by the vertical-plane shear modulus; ``shear_ratio`` = G_xy / G_xz).
     """
     c = chord
     area = b * (h - c)
@@ -92,7 +104,8 @@ def rectangle_section(
         - b * c * (z_hole - zbar) ** 2
     )
     Iz = (h - c) * b**3 / 12.0
-    J = rectangle_torsion_constant(b, h - c)
+    r = shear_ratio
+    J = r**1.5 * rectangle_torsion_constant(b / np.sqrt(r), h - c)
     return {"A": area, "Iy": Iy, "Iz": Iz, "Ip": Iy + Iz, "J": J}
 
 

@@ -4,6 +4,7 @@
 ``design`` runs CMA-ES then a least-squares polish and returns a ``DesignResult``.
 """
 
+from optimizer.correction import CorrectedDesign, CorrectionStep, corrected_design
 from optimizer.objective import Clearance, Evaluation, Evaluator, Goal, UnwantedMode, mac
 from optimizer.search import DesignResult, SearchSettings, design
 from optimizer.sensitivity import eigenvalue_gradients, mode_densities
@@ -12,6 +13,8 @@ from optimizer.spaces import BarUndercut, DesignField, StringDensity, TubeDesign
 __all__ = [
     "BarUndercut",
     "Clearance",
+    "CorrectedDesign",
+    "CorrectionStep",
     "DesignField",
     "DesignResult",
     "Evaluation",
@@ -21,6 +24,7 @@ __all__ = [
     "StringDensity",
     "TubeDesign",
     "UnwantedMode",
+    "corrected_design",
     "design",
     "eigenvalue_gradients",
     "mac",

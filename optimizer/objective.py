@@ -8,11 +8,13 @@ is the same sum in cents. With lambda = (2 pi f)^2,
     d cents / d s = (1200 / ln 2) * (1 / (2 lambda)) * d lambda / d s,
 and d lambda / d s comes from ``optimizer.sensitivity``.
 
-Unwanted modes (torsion, lateral bending) must keep clear of every goal partial: the gap
+Unwanted modes (torsion, lateral bending) must keep clear of every goal partial, taken at its
+target frequency (where it will sound once tuned, whichever model certifies it): the gap
 |f_m - f_p| must be at least ``keep_clear_hz(f_p)`` (the caller's rule, e.g. half a critical
 bandwidth: outside the critical band centred on the partial), or at most ``coincidence_hz``
 (a mode that close merges with the partial; common practice, no source). A violation adds a
-hinge residual (0 when clear).
+hinge residual, the distance still to go to the band's edge (0 when clear): the search pushes
+modes out of the band, never into coincidence, which no model predicts reliably enough.
 
 Modes are identified within their family by shape as well as order: the modal assurance
 criterion (Allemang, R. J. & Brown, D. L., 1982, "A correlation coefficient for modal vector
@@ -122,6 +124,8 @@ class Evaluator:
     ) -> None:
         self.space = space
         self.goals = tuple(goals)
+        # unwanted modes are kept clear of where the partials will sound: the targets
+        self.partials_hz = np.array([g.f_hz for g in self.goals])
         self.clearance = clearance
         self.theory = theory
         self.elements = elements
@@ -132,6 +136,12 @@ class Evaluator:
         self._cache: dict[bytes, Evaluation] = {}
         self.degree = degree or self._converged_degree(space.part(space.start()))
         self._set_mesh()
+
+    def set_goals(self, goals: Sequence[Goal]) -> None:
+        """Replace the goals (same families and orders), e.g. shifted by a model defect.
+        The clearance keeps referring to the sounding partials, ``partials_hz``."""
+        self.goals = tuple(goals)
+        self._cache.clear()
 
     def _set_mesh(self) -> None:
         self._fixed_disc: Discretisation | None = None
@@ -249,7 +259,7 @@ class Evaluator:
             for j in range(achieved.size):
                 gaps = np.abs(f - achieved[j])
                 inside = (gaps > c.coincidence_hz) & (gaps < band[j])
-                v = np.where(inside, np.minimum(band[j] - gaps, gaps - c.coincidence_hz), 0.0)
+                v = np.where(inside, band[j] - gaps, 0.0)  # always push the mode away
                 k = int(np.argmax(v)) if v.size else 0
                 hinge.append(float(v[k]) if v.size else 0.0)
                 which.append((fam, k, j, float(gaps[k]) if v.size else 0.0, float(band[j])))
@@ -267,7 +277,7 @@ class Evaluator:
             [CENTS_PER_LN * np.log(f / g.f_hz) for f, g in zip(achieved, self.goals, strict=True)]
         )
         scale = np.array([g.weight / g.tolerance_cents for g in self.goals])
-        unwanted, hinge, which = self._unwanted(modes, achieved)
+        unwanted, hinge, which = self._unwanted(modes, self.partials_hz)
         cw = self.clearance.weight if self.clearance else 0.0
         band = np.array([w[4] for w in which])
         residuals = np.concatenate([errors * scale, cw * 100.0 * hinge / np.maximum(band, 1e-9)])
@@ -341,8 +351,6 @@ class Evaluator:
                 continue
             f_m = np.sqrt(modes[fam][0][k]) / (2 * np.pi)
             df_m = dlam[fam][k] / (8 * np.pi**2 * f_m)  # df/dlambda = 1 / (8 pi^2 f)
-            df_p = J_goals[j] / scale[j] * achieved[j] / CENTS_PER_LN
-            dgap = np.sign(f_m - achieved[j]) * (df_m - df_p)
-            near_band = (band - gap) <= (gap - coincidence)
-            J_clear[r] = (-dgap if near_band else dgap) * cw * 100.0 / band
+            dgap = np.sign(f_m - self.partials_hz[j]) * df_m
+            J_clear[r] = -dgap * cw * 100.0 / band
         return np.vstack([J_goals, J_clear])

@@ -27,7 +27,7 @@ from scipy.optimize import least_squares
 from forward import solve
 from optimizer.objective import Evaluation, Evaluator
 
-__all__ = ["DesignResult", "SearchSettings", "design"]
+__all__ = ["DesignResult", "SearchSettings", "design", "polish", "verdict"]
 
 Progress = Callable[[str, int, float], None]
 
@@ -118,7 +118,7 @@ def _global_search(
     return best_u
 
 
-def _polish(evaluator: Evaluator, u0: np.ndarray, settings: SearchSettings, progress) -> np.ndarray:
+def polish(evaluator: Evaluator, u0: np.ndarray, settings: SearchSettings, progress) -> np.ndarray:
     space = evaluator.space
 
     def fun(u: np.ndarray) -> np.ndarray:
@@ -152,7 +152,7 @@ def _polish(evaluator: Evaluator, u0: np.ndarray, settings: SearchSettings, prog
     return u0 + t * (u - u0) if t < 1.0 else u
 
 
-def _verdict(evaluator: Evaluator, u: np.ndarray) -> tuple[bool, int, str, tuple[str, ...]]:
+def verdict(evaluator: Evaluator, u: np.ndarray) -> tuple[bool, int, str, tuple[str, ...]]:
     ev = evaluator.evaluate(u)
     goals = evaluator.goals
     space = evaluator.space
@@ -230,8 +230,8 @@ def design(
         u = _global_search(
             evaluator, x0, settings, settings.seed + 1000 * attempt, remaining, progress, handover
         )
-        u = _polish(evaluator, u, settings, progress)
-        ok, status, _, _ = _verdict(evaluator, u)
+        u = polish(evaluator, u, settings, progress)
+        ok, status, _, _ = verdict(evaluator, u)
         ev = evaluator.evaluate(u)
         score = _penalised(ev, space.curvature_margin(u), getattr(space, "cutter_radius", 0.0))
         if ok:
@@ -246,8 +246,8 @@ def design(
         if _certified_gap(evaluator, best_u) <= 0.1:
             break
         evaluator.refine()
-        best_u = _polish(evaluator, best_u, settings, progress)
-    ok, status, message, binding = _verdict(evaluator, best_u)
+        best_u = polish(evaluator, best_u, settings, progress)
+    ok, status, message, binding = verdict(evaluator, best_u)
     return DesignResult(
         u=best_u,
         evaluation=evaluator.evaluate(best_u),

@@ -241,7 +241,7 @@ class BarUndercut:
         m = part.material
         chord, z = hole_data(part, x)
         h = part.thickness(x) + 1j * _H
-        c = bar_coefficients(part.width(x), h, chord, z, m.E, m.G, m.rho, m.nu)
+        c = bar_coefficients(part.width(x), h, chord, z, m.E, m.G, m.rho, m.nu, m.shear_ratio)
         # thickness = blank - depth, so d/du = -dc/dh * ddepth/du
         return {name: -(np.imag(v) / _H) * dDepth for name, v in c.items()}
 

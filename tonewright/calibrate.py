@@ -93,7 +93,7 @@ __all__ = [
 
 CENTS_PER_LN = 1200.0 / np.log(2.0)
 E_TERMS = ("EIy", "EIz", "EA")  # coefficients proportional to E
-G_TERMS = ("kGA", "GJ")  # coefficients proportional to G
+G_TERMS = ("kGA", "kGAz", "GJ")  # coefficients proportional to G
 DEFAULT_COUNTS: Mapping[str, int] = {"bending": 6, "torsion": 1, "lateral": 1}
 MISSING_BENDING_PENALTY = 0.3  # score per lower bending mode absent from an assignment
 AMBIGUITY_MARGIN = 0.3  # a runner-up this close to the best score is reported

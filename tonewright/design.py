@@ -21,6 +21,8 @@ The ``[design]`` table (all optional; lengths in mm unless a unit is written):
     density_range = [0.5e-3, 4e-3]  # strings: linear density bounds, kg/m
     seed = 1
     budget = 2000             # forward solves at most
+    fidelity = "plane"        # bars: beam | plane (default) | solid: the model that certifies
+    thickness_axis = "T"      # wood for the 2D/3D models: T quarter-sawn, R flat-sawn
 """
 
 from __future__ import annotations
@@ -36,15 +38,18 @@ from forward.geometry import Part
 from optimizer import (
     BarUndercut,
     Clearance,
+    CorrectedDesign,
     DesignResult,
     Evaluator,
     Goal,
     SearchSettings,
     StringDensity,
     TubeDesign,
+    corrected_design,
     design,
 )
 from tonewright.errors import InputError, from_validation_error
+from tonewright.fidelity import Stage, check_bar, high_fidelity_function, stages_for
 from tonewright.partfile import PartFile
 from tonewright.pitch import critical_bandwidth_hz
 from tonewright.targets import ResolvedTarget, parse_target, resolve
@@ -53,6 +58,7 @@ from tonewright.units import Length
 __all__ = [
     "STRIKE_COMPONENTS",
     "DesignTable",
+    "Outcome",
     "Problem",
     "achieved",
     "build_problem",
@@ -86,6 +92,8 @@ class DesignTable(BaseModel):
     density_range: tuple[float, float] | None = None
     seed: int = Field(default=1, ge=0)
     budget: int = Field(default=2000, ge=50, le=100000)
+    fidelity: Literal["beam", "plane", "solid"] | None = None  # bars: plane by default
+    thickness_axis: Literal["T", "R"] = "T"  # wood: T quarter-sawn, R flat-sawn (2D/3D models)
 
     @model_validator(mode="after")
     def _ranges(self) -> DesignTable:
@@ -106,6 +114,7 @@ class Problem:
     evaluator: Evaluator
     target: ResolvedTarget
     table: DesignTable
+    base_dir: object = None
 
 
 def _goals(target: ResolvedTarget) -> list[Goal]:
@@ -191,12 +200,58 @@ def build_problem(part_file: PartFile, base_dir=None, seed: int | None = None) -
         clearance = Clearance(fams, keep_clear_hz, table.coincidence_hz)
     theory = part_file.model.theory
     evaluator = Evaluator(space, goals, clearance, theory=theory)
-    return Problem(part_file, blank, space, evaluator, target, table)
+    return Problem(part_file, blank, space, evaluator, target, table, base_dir)
 
 
-def run_design(problem: Problem, progress=None) -> DesignResult:
+@dataclass(frozen=True, eq=False)
+class Outcome:
+    """A design and, when corrected, each higher-fidelity stage it went through."""
+
+    result: DesignResult
+    fidelity: str
+    stages: tuple[tuple[Stage, CorrectedDesign], ...]
+
+    @property
+    def converged(self) -> bool:
+        if not self.stages:
+            return self.result.converged
+        return self.stages[-1][1].converged
+
+    @property
+    def message(self) -> str:
+        return self.stages[-1][1].message if self.stages else self.result.message
+
+
+def fidelity_of(problem: Problem, override: str | None = None) -> str:
+    chosen = override or problem.table.fidelity
+    if chosen is None:
+        return "plane" if isinstance(problem.blank, Bar) else "beam"
+    if chosen != "beam" and not isinstance(problem.blank, Bar):
+        raise InputError(f"fidelity {chosen!r}: the 2D/3D models are for bars; use 'beam'")
+    return chosen
+
+
+def run_design(problem: Problem, progress=None, fidelity: str | None = None) -> Outcome:
+    """Beam-model design, then the staged corrections of the chosen fidelity."""
     settings = SearchSettings(seed=problem.table.seed, budget=problem.table.budget)
-    return design(problem.evaluator, settings, progress)
+    fidelity = fidelity_of(problem, fidelity)
+    result = design(problem.evaluator, settings, progress)
+    stages: list[tuple[Stage, CorrectedDesign]] = []
+    if fidelity == "beam" or not result.converged:
+        return Outcome(result, fidelity, ())
+    check_bar(problem.blank)
+    spec = problem.part_file.material_spec(problem.base_dir)
+    material = spec.to_solid(problem.table.thickness_axis)
+    bar = problem.part_file.bar
+    current = result
+    for stage in stages_for(fidelity):
+        hf = high_fidelity_function(stage, problem.space, bar.thickness, bar.width, material)
+        corrected = corrected_design(problem.evaluator, current, hf, settings, progress=progress)
+        stages.append((stage, corrected))
+        current = corrected.result
+        if not corrected.converged and stage.model == "plane" and fidelity == "solid":
+            break
+    return Outcome(current, fidelity, tuple(stages))
 
 
 def station_profile(problem: Problem, u: np.ndarray, spacing: float = 1e-3) -> np.ndarray:

@@ -138,8 +138,18 @@ class MaterialSpec:
     note: str = ""
 
     def to_beam(self) -> Material:
-        """The beam model's material (all SI)."""
-        return Material(E=self.E, G=self.G, rho=self.rho, nu=self.nu, loss_factor=self.loss_factor)
+        """The beam model's material (all SI). For wood (quarter-sawn, thickness along T) the
+        width-plane shear is G_LR: ``shear_ratio`` = G_LR / G_LT, the handbook ratio."""
+        o = self.orthotropic
+        ratio = o.G_LR / o.G_LT if o is not None else 1.0
+        return Material(
+            E=self.E,
+            G=self.G,
+            rho=self.rho,
+            nu=self.nu,
+            loss_factor=self.loss_factor,
+            shear_ratio=ratio,
+        )
 
     def to_solid(self, thickness_axis: str = "T") -> SolidMaterial:
         """The 2D/3D models' material: the full orthotropic set for wood, isotropic for metals.

@@ -22,7 +22,7 @@ from rich import box
 from rich.console import Console
 from rich.table import Table
 
-from forward.geometry import Bar, Material, constant
+from forward.geometry import Bar, constant
 from tonewright.audio import read_tap
 from tonewright.calibrate import CENTS_PER_LN, Calibration, calibrate_bar
 from tonewright.cli_support import atomic_write_text, guarded
@@ -335,7 +335,7 @@ def register(app: typer.Typer) -> None:
             blank,
             bar=replace(
                 blank.bar,
-                material=Material(E=start.E, G=start.G, rho=rho, nu=start.nu),
+                material=replace(start.to_beam(), rho=rho),
             ),
         )
         if (wav is None) == (partials is None):

@@ -17,7 +17,14 @@ from rich.table import Table
 
 from forward import Bar
 from tonewright.cli_support import atomic_write_bytes, atomic_write_text, guarded, prepare_out_dir
-from tonewright.design import achieved, build_problem, certify, part_table, run_design
+from tonewright.design import (
+    achieved,
+    build_problem,
+    certify,
+    fidelity_of,
+    part_table,
+    run_design,
+)
 from tonewright.errors import InputError
 from tonewright.partfile import load_part, parse_part
 from tonewright.plots import figure_bytes, profile_figure, spectrum_figure
@@ -43,10 +50,18 @@ def _json_ready(obj: Any) -> Any:
     return obj
 
 
-def write_design(file: Path, out: Path, seed: int | None, force: bool, console: Console) -> int:
+def write_design(
+    file: Path,
+    out: Path,
+    seed: int | None,
+    force: bool,
+    console: Console,
+    fidelity: str | None = None,
+) -> int:
     """Run a design and write its outputs; returns the exit code (0 met, 1 out of reach)."""
     part_file, base = load_part(file)
     problem = build_problem(part_file, base, seed)
+    fidelity = fidelity_of(problem, fidelity)
     out = prepare_out_dir(out, OUTPUTS, force=force)
     with Progress(
         TextColumn("[bold]{task.description}"),
@@ -58,23 +73,37 @@ def write_design(file: Path, out: Path, seed: int | None, force: bool, console: 
     ) as bar:
         task = bar.add_task("searching", total=problem.table.budget, info="")
 
+        names = {"search": "searching", "polish": "polishing", "correct": "checking 2D/3D"}
+
         def progress(stage: str, solves: int, worst: float) -> None:
             bar.update(
                 task,
-                completed=solves,
-                description="searching" if stage == "search" else "polishing",
+                completed=min(solves, problem.table.budget),
+                description=names.get(stage, stage),
                 info=f"{solves} solves, worst partial {worst:.2f} cents",
             )
 
-        result = run_design(problem, progress)
+        outcome = run_design(problem, progress, fidelity)
+    result = outcome.result
 
     table = part_table(problem, result.u)
     written = parse_part(table, where="designed part")  # the file must be a valid part file
     part = written.to_part(base)
     modal = certify(problem, part)
     rows = achieved(problem, modal)
+    certifier = f"beam model ({part_file.model.theory})"
+    for r in rows:
+        r["beam_hz"] = r["achieved_hz"]
+        r["certified_by"] = certifier
+    if outcome.stages:
+        stage, corrected = outcome.stages[-1]
+        last = corrected.steps[-1]
+        for r, f in zip(rows, last.high_fidelity_hz, strict=True):
+            r["achieved_hz"] = float(f)
+            r["error_cents"] = float(1200 * np.log2(f / r["target_hz"]))
+            r["certified_by"] = stage.label
     within = all(abs(r["error_cents"]) <= r["tolerance_cents"] for r in rows)
-    converged = bool(result.converged and within)
+    converged = bool(outcome.converged and within)
     first = "bending" if modal.family("bending") else "transverse"
     nodes = [x * 1e3 for x in modal.family(first)[0].nodes_m]
     unwanted = [
@@ -89,9 +118,9 @@ def write_design(file: Path, out: Path, seed: int | None, force: bool, console: 
         }
         for m in result.evaluation.unwanted
     ]
-    message = result.message
-    status = result.status
-    if result.converged and not within:
+    message = outcome.message
+    status = result.status if not outcome.stages else (0 if outcome.converged else 1)
+    if outcome.converged and not within:
         message = "the certified solve of the written part misses the tolerance"
         status = 1
     payload = {
@@ -109,8 +138,23 @@ def write_design(file: Path, out: Path, seed: int | None, force: bool, console: 
             "seed": problem.table.seed,
             "forward_solves": result.solves,
         },
-        "certified_by": f"beam model ({part_file.model.theory}), converged to "
-        f"{modal.max_error_cents:.2g} cent",
+        "certified_by": (outcome.stages[-1][0].label if outcome.stages else certifier)
+        + f"; beam model converged to {modal.max_error_cents:.2g} cent",
+        "fidelity": fidelity,
+        "corrections": [
+            {
+                "model": stage.label,
+                "steps": [
+                    {
+                        "beam_hz": [float(v) for v in st.beam_hz],
+                        "model_hz": [float(v) for v in st.high_fidelity_hz],
+                        "errors_cents": [float(v) for v in st.errors_cents],
+                    }
+                    for st in corrected.steps
+                ],
+            }
+            for stage, corrected in outcome.stages
+        ],
         "caution": CAUTION,
     }
     atomic_write_text(
@@ -185,7 +229,7 @@ def _shape_figure(x_mm, shape, nodes):
 
 def _print_summary(console: Console, payload: dict, out: Path) -> None:
     table = Table(title="Design result", box=box.SIMPLE_HEAD)
-    for name in ("partial", "target Hz", "achieved Hz", "error (cents)", "tolerance"):
+    for name in ("partial", "target Hz", "achieved Hz", "error (cents)", "tolerance", "by"):
         table.add_column(name, justify="right" if name != "partial" else "left")
     for r in payload["partials"]:
         label = "strike note" if r["family"] == "strike" else f"{r['family']} {r['order']}"
@@ -195,6 +239,7 @@ def _print_summary(console: Console, payload: dict, out: Path) -> None:
             f"{r['achieved_hz']:.2f}",
             f"{r['error_cents']:+.3f}",
             f"{r['tolerance_cents']:g}",
+            r["certified_by"],
         )
     console.print(table)
     near = sorted(payload["unwanted_modes"], key=lambda m: m["gap_hz"] / m["keep_clear_hz"])[:3]
@@ -240,10 +285,19 @@ def register(app: typer.Typer) -> None:
         force: Annotated[
             bool, typer.Option("--force", help="Replace results already in --out.")
         ] = False,
+        fidelity: Annotated[
+            str | None,
+            typer.Option(help="Model that certifies a bar: beam, plane (default) or solid (3D)."),
+        ] = None,
+        beam_only: Annotated[
+            bool, typer.Option("--beam-only", help="Skip the 2D/3D correction (fast, rough).")
+        ] = False,
     ) -> None:
         """Design the undercut (or length, wall, density) that meets a target profile."""
         if seed is not None and seed < 0:
             raise InputError(f"--seed {seed}: give a whole number 0 or more")
-        code = write_design(file, out, seed, force, Console())
+        if fidelity is not None and fidelity not in ("beam", "plane", "solid"):
+            raise InputError(f"--fidelity {fidelity!r}: choose beam, plane or solid")
+        code = write_design(file, out, seed, force, Console(), "beam" if beam_only else fidelity)
         if code:
             raise typer.Exit(code=code)
