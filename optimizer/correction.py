@@ -87,6 +87,10 @@ def corrected_design(
             evaluator.set_goals(shifted)
             u = polish(evaluator, u, settings, progress)
         _, status, message, binding = verdict(evaluator, u)
+        if status == 1 and np.all(np.abs(steps[-1].errors_cents) <= tol):
+            # the beam misses its shifted goals by the defect's drift only: the model that
+            # certifies meets the real goals, so no limit binds
+            status, message, binding = 0, "every partial within tolerance", ()
         result = replace(
             start,
             u=u,
@@ -102,7 +106,7 @@ def corrected_design(
     last = steps[-1]
     met = bool(np.all(np.abs(last.errors_cents) <= tol))
     if met and result.status in (0, 1):
-        message = f"the high-fidelity model meets every goal after {len(steps) - 1} correction(s)"
+        message = f"meets every goal in the certifying model ({len(steps) - 1} correction(s))"
     elif met:
         message = result.message
     else:

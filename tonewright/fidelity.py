@@ -39,11 +39,11 @@ class Stage:
 def stages_for(fidelity: str) -> list[Stage]:
     if fidelity == "beam":
         return []
-    stages = [Stage("plane", PlaneMesh(), "2D side-profile model")]
+    stages = [Stage("plane", PlaneMesh(), "2D profile")]
     if fidelity == "solid":
         stages += [
-            Stage("solid", COARSE_SOLID, "3D model (coarse mesh)"),
-            Stage("solid", SolidMesh(), "3D model (converged mesh)"),
+            Stage("solid", COARSE_SOLID, "3D coarse"),
+            Stage("solid", SolidMesh(), "3D"),
         ]
     return stages
 

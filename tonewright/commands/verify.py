@@ -100,8 +100,9 @@ def verify_part(file: Path, mesh: str = "standard") -> dict:
             gap = abs(m["frequency_hz"] - p.f_hz)
             if table.coincidence_hz < gap < band:
                 warnings.append(
-                    f"{m['family']} {m['order']} at {m['frequency_hz']:.1f} Hz is {gap:.1f} Hz from "
-                    f"the {p.family} {p.order} target ({p.f_hz:.1f} Hz); keep {band:.0f} Hz clear"
+                    f"{m['family']} {m['order']} at {m['frequency_hz']:.1f} Hz is {gap:.1f} Hz "
+                    f"from the {p.family} {p.order} target ({p.f_hz:.1f} Hz); "
+                    f"keep {band:.0f} Hz clear"
                 )
     if part.holes:
         warnings.append("the 3D model leaves out the suspension holes")
