@@ -83,9 +83,9 @@ class Orthotropic:
     G_LR: float
     G_LT: float
     G_RT: float
-    nu_LR: float  # noqa: N815
-    nu_LT: float  # noqa: N815
-    nu_RT: float  # noqa: N815
+    nu_LR: float
+    nu_LT: float
+    nu_RT: float
 
     def compliance_matrix(self) -> np.ndarray:
         """6x6 compliance in Voigt order (L, R, T, RT, LT, LR), 1/Pa; see the module docstring."""
@@ -132,7 +132,7 @@ class MaterialSpec:
     rho: float
     nu: float
     loss_factor: float
-    temp_coeff_cents_per_K: float | None = None  # noqa: N815
+    temp_coeff_cents_per_K: float | None = None
     orthotropic: Orthotropic | None = None
     sources: Mapping[str, str] = field(default_factory=lambda: MappingProxyType({}))
     note: str = ""
@@ -202,7 +202,7 @@ class _LibraryEntry(BaseModel):
     note: str = ""
     density: _Sourced
     loss_factor: _Sourced
-    temp_coeff_cents_per_K: _Sourced  # noqa: N815
+    temp_coeff_cents_per_K: _Sourced
     E: _Sourced | None = None
     G: _Sourced | None = None
     nu: _Sourced | None = None
@@ -212,11 +212,11 @@ class _LibraryEntry(BaseModel):
     G_LR: _Sourced | None = None
     G_LT: _Sourced | None = None
     G_RT: _Sourced | None = None
-    nu_LR: _Sourced | None = None  # noqa: N815
-    nu_LT: _Sourced | None = None  # noqa: N815
-    nu_RT: _Sourced | None = None  # noqa: N815
-    modulus_temp_coeff_per_K: _Sourced | None = None  # noqa: N815
-    thermal_expansion_per_K: _Sourced | None = None  # noqa: N815
+    nu_LR: _Sourced | None = None
+    nu_LT: _Sourced | None = None
+    nu_RT: _Sourced | None = None
+    modulus_temp_coeff_per_K: _Sourced | None = None
+    thermal_expansion_per_K: _Sourced | None = None
 
     @model_validator(mode="after")
     def _keys_fit_kind(self) -> _LibraryEntry:
