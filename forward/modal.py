@@ -181,10 +181,33 @@ def _fixed_points(part: Part, max_breakpoint_nodes: int) -> np.ndarray:
         for hole in part.holes:
             r = 0.5 * hole.diameter
             pts += [hole.x - r, hole.x, hole.x + r]
-    bps = _breakpoints(part)
-    if bps.size <= max_breakpoint_nodes:
-        pts += list(bps)
+    pts += list(_strongest_kinks(part, max_breakpoint_nodes))
     return np.asarray(pts, dtype=float)
+
+
+def _strongest_kinks(part: Part, limit: int) -> np.ndarray:
+    """Up to ``limit`` breakpoints where the section data bend most sharply.
+
+    All of them when there are few (caliper stations, a designed cut's edges); from dense
+    stations (a design written at 1 mm) only the real corners, so that elements do not straddle
+    a sharp change of section while smooth profiles keep a coarse mesh.
+    """
+    bps = _breakpoints(part)
+    if bps.size <= limit:
+        return bps
+    fields = (part.thickness,) if isinstance(part, Bar) else ()
+    if not fields:
+        return np.empty(0)
+    eps = 1e-6 * part.length
+    turn = np.zeros(bps.size)
+    for f in fields:
+        left = (f(bps) - f(bps - eps)) / eps
+        right = (f(bps + eps) - f(bps)) / eps
+        turn += np.abs(right - left)
+    strong = turn > 0.05  # a change of slope over ~3 degrees: a corner, not a sampled curve
+    order = np.argsort(-turn)
+    keep = order[: limit][strong[order[: limit]]]
+    return np.sort(bps[keep])
 
 
 def _breakpoints(part: Part) -> np.ndarray:

@@ -17,7 +17,16 @@ app = typer.Typer(
 )
 
 # Each module defines register(app). Order here is the order in --help.
-_COMMAND_MODULES = ["modes", "design", "verify", "shop", "listen", "calibrate", "sound"]
+_COMMAND_MODULES = [
+    "modes",
+    "design",
+    "verify",
+    "shop",
+    "advise",
+    "listen",
+    "calibrate",
+    "sound",
+]
 
 for _name in _COMMAND_MODULES:
     importlib.import_module(f"tonewright.commands.{_name}").register(app)
