@@ -17,6 +17,7 @@ Evidence, by kind:
 
 import json
 import tomllib
+from dataclasses import replace
 from pathlib import Path
 
 import numpy as np
