@@ -73,7 +73,9 @@ def verify_part(file: Path, mesh: str = "standard") -> dict:
                 "frequency_hz": round(float(m.f_hz), 4),
                 "nodes_mm": [round(x * 1e3, 2) for x in nodes],
                 "beam_hz": None if b is None else round(b, 4),
-                "beam_minus_3d_cents": None if b is None else round(1200 * np.log2(b / m.f_hz), 2),
+                "beam_minus_3d_cents": None
+                if b is None
+                else round(float(1200 * np.log2(b / m.f_hz)), 2),
                 "share": round(float(m.share), 3),
             }
         )
@@ -81,7 +83,7 @@ def verify_part(file: Path, mesh: str = "standard") -> dict:
     solid_hz = {(m["family"], m["order"]): m["frequency_hz"] for m in modes}
     for p in targets:
         f = solid_hz.get((p.family, p.order))
-        err = None if f is None else 1200 * np.log2(f / p.f_hz)
+        err = None if f is None else float(1200 * np.log2(f / p.f_hz))
         rows.append(
             {
                 "family": p.family,
@@ -90,7 +92,7 @@ def verify_part(file: Path, mesh: str = "standard") -> dict:
                 "solid_hz": f,
                 "error_cents": None if err is None else round(err, 3),
                 "tolerance_cents": p.tolerance_cents,
-                "within": err is not None and abs(err) <= p.tolerance_cents,
+                "within": bool(err is not None and abs(err) <= p.tolerance_cents),
             }
         )
         band = 0.5 * table.clearance_bands * float(critical_bandwidth_hz(p.f_hz))

@@ -1,0 +1,58 @@
+"""`tonewright verify`: the 3D check of a bar from a part file or a design result.
+
+The 3D model's own evidence (closed forms, scikit-fem cross-check, convergence) is in
+tests/test_solid.py; here: the command's output, its comparison with the beam model, and
+its error paths.
+"""
+
+from __future__ import annotations
+
+import json
+from pathlib import Path
+
+import pytest
+from typer.testing import CliRunner
+
+from tonewright.cli import app
+
+runner = CliRunner()
+
+
+def _write(tmp_path: Path, text: str) -> Path:
+    path = tmp_path / "p.toml"
+    path.write_text(text)
+    return path
+
+
+def test_tubes_are_refused_with_one_line(tmp_path):
+    path = _write(
+        tmp_path,
+        'material = "aluminium-6061-t6"\n[tube]\nlength = 800\nouter_diameter = 32\nwall = 1.5\n',
+    )
+    result = runner.invoke(app, ["verify", str(path), "--json"])
+    assert result.exit_code == 2
+    assert "for bars" in result.output and "Traceback" not in result.output
+
+
+def test_bad_mesh_option(tmp_path):
+    path = _write(
+        tmp_path, 'material = "sugar-maple"\n[bar]\nlength = 300\nwidth = 40\nthickness = 20\n'
+    )
+    result = runner.invoke(app, ["verify", str(path), "--mesh", "huge"])
+    assert result.exit_code == 2
+
+
+@pytest.mark.slow
+def test_uniform_bar_3d_against_beam(tmp_path):
+    # uniform sugar-maple blank: the Timoshenko beam with orthotropic torsion agrees with the
+    # 3D model within a few cents on bending 1-2 (measured ~0.3-1 cent) and torsion 1
+    path = _write(
+        tmp_path, 'material = "sugar-maple"\n[bar]\nlength = 400\nwidth = 50\nthickness = 22\n'
+    )
+    result = runner.invoke(app, ["verify", str(path), "--json", "--mesh", "coarse"])
+    assert result.exit_code == 0, result.output
+    payload = json.loads(result.output)
+    modes = {(m["family"], m["order"]): m for m in payload["modes"]}
+    for key, tol in ((("bending", 1), 5.0), (("bending", 2), 5.0), (("torsion", 1), 10.0)):
+        assert abs(modes[key]["beam_minus_3d_cents"]) < tol, (key, modes[key])
+    assert modes[("bending", 1)]["nodes_mm"][0] == pytest.approx(0.2242 * 400, abs=3.0)
