@@ -109,6 +109,21 @@ def bar_coefficients(
     }
 
 
+def tube_coefficients(D: np.ndarray, wall: np.ndarray, m) -> dict[str, np.ndarray]:
+    """Beam coefficients of a round tube (complex-safe for complex-step derivatives)."""
+    s = tube_section(D, wall)
+    kappa = cowper_hollow_circle(m.nu, (D - 2.0 * wall) / D)
+    return {
+        "EIy": m.E * s["Iy"],
+        "kGA": kappa * m.G * s["A"],
+        "rhoA": m.rho * s["A"],
+        "rhoIy": m.rho * s["Iy"],
+        "GJ": m.G * s["J"],
+        "rhoIp": m.rho * s["Ip"],
+        "EA": m.E * s["A"],
+    }
+
+
 def hole_data(part: Bar, x: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     """Chord of every hole at x and the height of the hole centre there (zeros elsewhere)."""
     chord = np.zeros_like(x)
@@ -132,20 +147,7 @@ def section_coefficients(part: Part, x: np.ndarray) -> dict[str, np.ndarray]:
             part.width(x), part.thickness(x), chord, z, m.E, m.G, m.rho, m.nu, m.shear_ratio
         )
     if isinstance(part, Tube):
-        m = part.material
-        D = part.outer_diameter(x)
-        wall = part.wall(x)
-        s = tube_section(D, wall)
-        kappa = cowper_hollow_circle(m.nu, (D - 2.0 * wall) / D)
-        return {
-            "EIy": m.E * s["Iy"],
-            "kGA": kappa * m.G * s["A"],
-            "rhoA": m.rho * s["A"],
-            "rhoIy": m.rho * s["Iy"],
-            "GJ": m.G * s["J"],
-            "rhoIp": m.rho * s["Ip"],
-            "EA": m.E * s["A"],
-        }
+        return tube_coefficients(part.outer_diameter(x), part.wall(x), part.material)
     return {
         "EI": part.bending_stiffness(x),
         "T": np.full_like(x, part.tension),
@@ -206,7 +208,7 @@ def _strongest_kinks(part: Part, limit: int) -> np.ndarray:
         turn += np.abs(right - left)
     strong = turn > 0.05  # a change of slope over ~3 degrees: a corner, not a sampled curve
     order = np.argsort(-turn)
-    keep = order[: limit][strong[order[: limit]]]
+    keep = order[:limit][strong[order[:limit]]]
     return np.sort(bps[keep])
 
 

@@ -31,8 +31,7 @@ import numpy as np
 from scipy.interpolate import BSpline
 
 from forward.geometry import Bar, Part, String, Tube
-from forward.modal import bar_coefficients, hole_data
-from forward.sections import cowper_hollow_circle, tube_section
+from forward.modal import bar_coefficients, hole_data, tube_coefficients
 
 __all__ = [
     "BarUndercut",
@@ -358,20 +357,7 @@ class TubeDesign:
         _, dwall = self.wall_and_jacobian(u, x)
         if dwall.shape[0] == 0:
             return {}
-        m = part.material
-        D = part.outer_diameter(x)
-        wall = part.wall(x) + 1j * _H
-        s = tube_section(D, wall)
-        kappa = cowper_hollow_circle(m.nu, (D - 2.0 * wall) / D)
-        c = {
-            "EIy": m.E * s["Iy"],
-            "kGA": kappa * m.G * s["A"],
-            "rhoA": m.rho * s["A"],
-            "rhoIy": m.rho * s["Iy"],
-            "GJ": m.G * s["J"],
-            "rhoIp": m.rho * s["Ip"],
-            "EA": m.E * s["A"],
-        }
+        c = tube_coefficients(part.outer_diameter(x), part.wall(x) + 1j * _H, part.material)
         return {name: (np.imag(v) / _H) * dwall for name, v in c.items()}
 
     def curvature_margin(self, u: np.ndarray) -> float:

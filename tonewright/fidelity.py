@@ -65,25 +65,16 @@ def high_fidelity_function(stage: Stage, space, blank_thickness: float, width: f
         if stage.model == "plane":
             if any(g.family != "bending" for g in goals):
                 raise InputError("the 2D model checks bending partials only: use fidelity 'solid'")
-            res = plane_modes(
-                part.length,
-                width,
-                blank_thickness,
-                part.thickness,
-                material,
-                fmax_hz=top,
-                mesh=stage.mesh,
-            )
-        else:
-            res = solid_modes(
-                part.length,
-                width,
-                blank_thickness,
-                part.thickness,
-                material,
-                fmax_hz=top,
-                mesh=stage.mesh,
-            )
+        model = plane_modes if stage.model == "plane" else solid_modes
+        res = model(
+            part.length,
+            width,
+            blank_thickness,
+            part.thickness,
+            material,
+            fmax_hz=top,
+            mesh=stage.mesh,
+        )
         out = []
         for g in goals:
             fam = res.family_hz(g.family)
