@@ -49,11 +49,11 @@ def stages_for(fidelity: str) -> list[Stage]:
 
 
 def check_bar(part: Bar) -> None:
-    w = np.asarray(part.width.breakpoints)
-    widths = part.width(np.linspace(0.0, part.length, 9))
+    """The 2D/3D models take a constant width."""
+    x = np.concatenate([np.linspace(0.0, part.length, 9), np.asarray(part.width.breakpoints)])
+    widths = part.width(x)
     if np.ptp(widths) > 1e-9 * widths.max():
         raise InputError("bar.width_profile: the 2D/3D models need a constant width")
-    del w
 
 
 def high_fidelity_function(stage: Stage, space, blank_thickness: float, width: float, material):
