@@ -224,11 +224,13 @@ def design(
         remaining = settings.budget - evaluator.solves
         if remaining <= 0:
             break
+        # share the budget: a stalled run must leave room for the restarts
+        share = remaining // (settings.restarts + 1 - attempt)
         # each restart searches longer before handing over: a polish that stalled (usually on
         # an unwanted mode's band) needs a start closer to a feasible basin
         handover = settings.handover_cents / 4.0**attempt
         u = _global_search(
-            evaluator, x0, settings, settings.seed + 1000 * attempt, remaining, progress, handover
+            evaluator, x0, settings, settings.seed + 1000 * attempt, share, progress, handover
         )
         u = polish(evaluator, u, settings, progress)
         ok, status, _, _ = verdict(evaluator, u)

@@ -23,6 +23,7 @@ _COMMAND_MODULES = [
     "verify",
     "shop",
     "advise",
+    "instrument",
     "listen",
     "calibrate",
     "sound",

@@ -256,9 +256,20 @@ def run_design(problem: Problem, progress=None, fidelity: str | None = None) -> 
 
 def station_profile(problem: Problem, u: np.ndarray, spacing: float = 1e-3) -> np.ndarray:
     """Thickness stations (x, h) in metres at ``spacing`` or finer, with every kink of the cut
-    (and both sides of a step) included, so that linear interpolation reproduces the design."""
+    (and both sides of a step) included, so that linear interpolation reproduces the design.
+
+    Linear interpolation is off by at most |h''| dx^2 / 8 between stations; the spacing is
+    tightened until that is under 2e-5 of the thinnest section (well under 0.01 cent: the
+    frequency moves by about half the relative thickness change, 1 cent = 5.8e-4).
+    """
     space = problem.space
     L = space.length(u)
+    fine = np.linspace(0.0, L, 4001)
+    depth = space.depth_and_jacobian(u, fine)[0]
+    h_min = float(np.min(space.blank_thickness - depth))
+    curvature = float(np.max(np.abs(np.diff(depth, 2)))) / (fine[1] - fine[0]) ** 2
+    if curvature > 0:
+        spacing = min(spacing, max(1e-4, np.sqrt(8 * 2e-5 * h_min / curvature)))
     n = int(np.ceil(L / spacing))
     x = np.linspace(0.0, L, n + 1)
     kinks = space.kinks(u)
