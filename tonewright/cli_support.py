@@ -4,17 +4,26 @@ from __future__ import annotations
 
 import functools
 import os
+import re
 import tempfile
 from collections.abc import Callable
 from pathlib import Path
 from typing import Any, TypeVar
 
+import numpy as np
 import typer
 from threadpoolctl import threadpool_limits
 
 from tonewright.errors import InputError
 
-__all__ = ["atomic_write_bytes", "atomic_write_text", "fail", "guarded", "prepare_out_dir"]
+__all__ = [
+    "atomic_write_bytes",
+    "atomic_write_text",
+    "fail",
+    "guarded",
+    "parse_partials",
+    "prepare_out_dir",
+]
 
 F = TypeVar("F", bound=Callable[..., Any])
 
@@ -80,3 +89,17 @@ def prepare_out_dir(out: Path, names: list[str], *, force: bool) -> Path:
             )
     out.mkdir(parents=True, exist_ok=True)
     return out
+
+
+def parse_partials(text: str) -> np.ndarray:
+    """Frequencies in Hz from ``"262.1, 1049.5, 2617"`` (commas, spaces or semicolons)."""
+    items = [t for t in re.split(r"[,\s;]+", text.strip()) if t]
+    try:
+        values = np.array([float(t) for t in items])
+    except ValueError:
+        raise InputError(
+            f'--partials {text!r}: give frequencies in Hz separated by commas, e.g. "262.1,1049.5"'
+        ) from None
+    if values.size == 0 or not np.all(np.isfinite(values)) or np.any(values <= 0):
+        raise InputError(f"--partials {text!r}: give one or more positive frequencies in Hz")
+    return values

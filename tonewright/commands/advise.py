@@ -10,7 +10,6 @@ from __future__ import annotations
 
 import json
 import math
-import re
 from pathlib import Path
 from typing import Annotated, Any
 
@@ -25,14 +24,14 @@ from forward import Bar, Material
 from optimizer import Goal
 from tonewright.advise import CENTS_PER_LN, Advice, Step, advise
 from tonewright.audio import read_tap
-from tonewright.cli_support import atomic_write_bytes, guarded
+from tonewright.cli_support import atomic_write_bytes, guarded, parse_partials
 from tonewright.design import DesignTable
 from tonewright.errors import InputError, from_validation_error
 from tonewright.partfile import PartFile, load_part
 from tonewright.tap import find_partials
 from tonewright.targets import parse_target, resolve
 
-__all__ = ["CAUTION", "advice_payload", "goals_of", "map_figure", "parse_partials", "register"]
+__all__ = ["CAUTION", "advice_payload", "goals_of", "map_figure", "register"]
 
 CAUTION = (
     "Material cannot be put back: cut no deeper than advised, tap after each step and run "
@@ -42,20 +41,6 @@ CAUTION = (
 )
 DEFAULT_MIN_SHARE = 0.2  # minimum thickness, as a share of the blank, when the file gives none
 PALETTE = ("#1b6f8a", "#c0392b", "#7b4fa0", "#5a8f29", "#b5651d", "#444444")
-
-
-def parse_partials(text: str) -> np.ndarray:
-    """Frequencies in Hz from ``"262.1, 1049.5, 2617"`` (commas, spaces or semicolons)."""
-    items = [t for t in re.split(r"[,\s;]+", text.strip()) if t]
-    try:
-        values = np.array([float(t) for t in items])
-    except ValueError:
-        raise InputError(
-            f'--partials {text!r}: give frequencies in Hz separated by commas, e.g. "262.1,1049.5"'
-        ) from None
-    if values.size == 0 or not np.all(np.isfinite(values)) or np.any(values <= 0):
-        raise InputError(f"--partials {text!r}: give one or more positive frequencies in Hz")
-    return values
 
 
 def goals_of(part_file: PartFile, base: Path | None) -> tuple[Goal, ...]:

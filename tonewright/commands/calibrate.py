@@ -10,7 +10,6 @@ from __future__ import annotations
 
 import json
 import math
-import re
 from dataclasses import dataclass, replace
 from pathlib import Path
 from typing import Annotated, Any
@@ -25,7 +24,7 @@ from rich.table import Table
 from forward.geometry import Bar, constant
 from tonewright.audio import read_tap
 from tonewright.calibrate import CENTS_PER_LN, Calibration, calibrate_bar
-from tonewright.cli_support import atomic_write_text, guarded
+from tonewright.cli_support import atomic_write_text, guarded, parse_partials
 from tonewright.errors import InputError
 from tonewright.materials import MaterialSpec, list_materials, load_material
 from tonewright.partfile import load_part
@@ -157,19 +156,6 @@ def _density(blank: Blank, mass_g: float | None, density: float | None) -> float
             "check the units (grams, millimetres)"
         )
     return rho
-
-
-def _parse_partials(text: str) -> np.ndarray:
-    items = [t for t in re.split(r"[,\s;]+", text.strip()) if t]
-    try:
-        values = np.array([float(t) for t in items])
-    except ValueError:
-        raise InputError(
-            f'--partials {text!r}: give frequencies in Hz separated by commas, e.g. "352.1,1290.5"'
-        ) from None
-    if values.size == 0 or not np.all(np.isfinite(values)) or np.any(values <= 0):
-        raise InputError(f"--partials {text!r}: give one or more positive frequencies in Hz")
-    return values
 
 
 def _finite(value: float, digits: int = 6) -> float | None:
@@ -362,7 +348,7 @@ def register(app: typer.Typer) -> None:
             decay = np.array([p.decay_s for p in tap.partials])
             decay = np.where(np.isfinite(decay) & (decay > 0), decay, np.nan)
         else:
-            f = _parse_partials(partials)
+            f = parse_partials(partials)
             sd = None if sd_cents is None else np.full(f.size, sd_cents)
             decay = None
         cal = calibrate_bar(blank.bar, f, sd, decay, theory=blank.theory, tolerance_cents=tolerance)
