@@ -14,7 +14,8 @@ Each family is an independent generalized eigenproblem K phi = lambda M phi, lam
 Accuracy control: the hierarchical basis makes the degree p - 1 space a subspace of the
 degree p space, so lambda_{p-1} >= lambda_p >= lambda_exact. The difference, in cents, bounds
 the error of the degree p - 1 result and over-estimates that of the reported degree p result;
-the mesh is bisected until it is below the requested tolerance for every reported mode.
+the largest element size is halved until it is below the requested tolerance for every reported
+mode (the estimate compares degrees on one mesh, so the meshes need not be nested).
 """
 
 from __future__ import annotations
