@@ -135,3 +135,15 @@ def test_design_same_seed_same_files(tmp_path):
     assert (tmp_path / "a" / "profile.svg").read_bytes() == (
         tmp_path / "b" / "profile.svg"
     ).read_bytes()
+
+
+def test_wood_without_orthotropic_data_fails_before_the_search(tmp_path):
+    # an inline wood-like material (E/G = 14) has no ratios for the 2D model: say so at once
+    text = (
+        "[material]\nE = 20\nG = 1.4\ndensity = 900\n[bar]\nlength = 400\nwidth = 50\n"
+        'thickness = 22\n[target]\nfundamental = "C4"\nprofile = "marimba-1-4-10"\n'
+    )
+    path = _write(tmp_path, text)
+    result = runner.invoke(app, ["design", str(path), "--out", str(tmp_path / "o")])
+    assert result.exit_code == 2
+    assert "base =" in result.output and "--beam-only" in result.output

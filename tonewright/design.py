@@ -235,13 +235,18 @@ def run_design(problem: Problem, progress=None, fidelity: str | None = None) -> 
     """Beam-model design, then the staged corrections of the chosen fidelity."""
     settings = SearchSettings(seed=problem.table.seed, budget=problem.table.budget)
     fidelity = fidelity_of(problem, fidelity)
+    material = None
+    if fidelity != "beam":  # fail before the search, not after it
+        check_bar(problem.blank)
+        spec = problem.part_file.material_spec(problem.base_dir)
+        try:
+            material = spec.to_solid(problem.table.thickness_axis)
+        except InputError as exc:
+            raise InputError(f"{exc}; or design with --beam-only") from None
     result = design(problem.evaluator, settings, progress)
     stages: list[tuple[Stage, CorrectedDesign]] = []
     if fidelity == "beam" or not result.converged:
         return Outcome(result, fidelity, ())
-    check_bar(problem.blank)
-    spec = problem.part_file.material_spec(problem.base_dir)
-    material = spec.to_solid(problem.table.thickness_axis)
     bar = problem.part_file.bar
     current = result
     for stage in stages_for(fidelity):
