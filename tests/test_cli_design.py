@@ -32,6 +32,7 @@ def test_demo_design_meets_its_target(demo):
     payload = json.loads((out / "result.json").read_text())
     assert payload["converged"] is True
     assert {"part", "partials", "converged"} <= set(payload)
+    assert payload["modes_tracked_by_shape"] is True  # the tuned partials kept their shapes
     for row in payload["partials"]:
         assert {"family", "order", "target_hz", "achieved_hz", "error_cents"} <= set(row)
         assert abs(row["error_cents"]) <= row["tolerance_cents"]

@@ -130,6 +130,8 @@ def write_design(
         "status": status,
         "message": message,
         "binding_limits": list(result.binding),
+        # partials are followed by order within their family and confirmed by shape (MAC)
+        "modes_tracked_by_shape": bool(result.evaluation.mac_ok),
         "unwanted_modes": unwanted,
         "mode1_nodes_mm": nodes,
         "design": {
