@@ -26,12 +26,19 @@ bending and lateral mode n has n + 1 nodes, torsion and axial mode n has n (e.g.
 
 from __future__ import annotations
 
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 from typing import Literal
 
 import numpy as np
 
-__all__ = ["FAMILIES", "ClassifiedMode", "classify_modes", "family_shares", "sign_changes"]
+__all__ = [
+    "FAMILIES",
+    "ClassifiedMode",
+    "ModeSet",
+    "classify_modes",
+    "family_shares",
+    "sign_changes",
+]
 
 Family = Literal["bending", "lateral", "torsion", "axial", "other"]
 FAMILIES: tuple[Family, ...] = ("bending", "lateral", "torsion", "axial")
@@ -136,3 +143,23 @@ def classify_modes(
         nodes = int(sign_changes(main[i, k])[0])
         modes.append(ClassifiedMode(float(f), family, rank[family], nodes, share))
     return tuple(modes)
+
+
+@dataclass(frozen=True)
+class ModeSet:
+    """Free-free modes of a 2D or 3D model: ``f_hz`` (m,), ``modes`` classified, the ``mesh``,
+    ``n_dof``, node ``coords`` and mass-normalised ``shapes`` (one per mode, node-wise
+    displacement components), ``status`` (0 ok, 1 warning) and ``message``."""
+
+    f_hz: np.ndarray
+    modes: tuple[ClassifiedMode, ...]
+    mesh: object
+    n_dof: int
+    coords: np.ndarray = field(repr=False)
+    shapes: np.ndarray = field(repr=False)
+    status: int = 0
+    message: str = "converged"
+
+    def family_hz(self, name: str) -> np.ndarray:
+        """Frequencies (Hz) of one family, in order."""
+        return np.array([m.f_hz for m in self.modes if m.family == name])

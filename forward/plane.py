@@ -23,12 +23,12 @@ reference on the demo undercut bar (modes to 4.6 kHz) at a fraction of a second 
 
 from __future__ import annotations
 
-from dataclasses import dataclass, field
+from dataclasses import dataclass
 
 import numpy as np
 import scipy.sparse as sp
 
-from forward.classify import ClassifiedMode, classify_modes
+from forward.classify import ModeSet, classify_modes
 from forward.geometry import Field
 from forward.orthotropic import Orthotropic, bar_axes, plane_stress_xz
 from forward.solid import (
@@ -163,26 +163,7 @@ def assemble_plane(
     return K, M
 
 
-@dataclass(frozen=True)
-class PlaneResult:
-    """Free-free modes of the side-profile model.
-
-    ``f_hz`` (m,), ``modes`` classified (bending, axial or other), ``coords`` (Nx, Nz, 2) node
-    (x, z), ``shapes`` (m, Nx, Nz, 2) mass-normalised (u, w), ``n_dof``, ``status``, ``message``.
-    """
-
-    f_hz: np.ndarray
-    modes: tuple[ClassifiedMode, ...]
-    mesh: PlaneMesh
-    n_dof: int
-    coords: np.ndarray = field(repr=False)
-    shapes: np.ndarray = field(repr=False)
-    status: int = 0
-    message: str = "converged"
-
-    def family_hz(self, name: str) -> np.ndarray:
-        """Frequencies (Hz) of one family, in order."""
-        return np.array([m.f_hz for m in self.modes if m.family == name])
+PlaneResult = ModeSet  # coords (Nx, Nz, 2) as (x, z); shapes (m, Nx, Nz, 2) as (u, w)
 
 
 def plane_modes(

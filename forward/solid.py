@@ -42,13 +42,13 @@ from __future__ import annotations
 
 from collections.abc import Callable
 from contextlib import AbstractContextManager, nullcontext
-from dataclasses import dataclass, field
+from dataclasses import dataclass
 
 import numpy as np
 import scipy.sparse as sp
 from scipy.sparse.linalg import LinearOperator, eigsh, splu
 
-from forward.classify import ClassifiedMode, classify_modes
+from forward.classify import ClassifiedMode, ModeSet, classify_modes
 from forward.geometry import Field
 from forward.orthotropic import Orthotropic, bar_axes, stiffness_matrix
 
@@ -448,27 +448,7 @@ def solve_free_modes(
 
 # ----------------------------------------------------------------------------------------------
 # Public model
-@dataclass(frozen=True)
-class SolidResult:
-    """Free-free modes of the 3-D model.
-
-    ``f_hz`` (m,), ``modes`` classified, ``coords`` (Nx, Ny, Nz, 3) nodes, ``shapes``
-    (m, Nx, Ny, Nz, 3) mass-normalised displacements, ``n_dof``, ``status`` (0 ok, 1 warning)
-    and ``message``.
-    """
-
-    f_hz: np.ndarray
-    modes: tuple[ClassifiedMode, ...]
-    mesh: SolidMesh
-    n_dof: int
-    coords: np.ndarray = field(repr=False)
-    shapes: np.ndarray = field(repr=False)
-    status: int = 0
-    message: str = "converged"
-
-    def family_hz(self, name: str) -> np.ndarray:
-        """Frequencies (Hz) of one family, in order."""
-        return np.array([m.f_hz for m in self.modes if m.family == name])
+SolidResult = ModeSet  # coords (Nx, Ny, Nz, 3); shapes (m, Nx, Ny, Nz, 3)
 
 
 def _validate_request(count: int, fmax_hz: float | None) -> None:
