@@ -46,6 +46,7 @@ __all__ = [
     "Orthotropic",
     "bar_axes",
     "beam_material",
+    "compliance_lrt",
     "compliance_matrix",
     "isotropic",
     "plane_stress_xz",
@@ -89,7 +90,7 @@ class Orthotropic:
             raise ValueError(
                 f"material thickness_axis = {self.thickness_axis!r}: allowed 'R' or 'T'"
             )
-        eig = np.linalg.eigvalsh(_compliance_LRT(self))
+        eig = np.linalg.eigvalsh(compliance_lrt(self))
         if eig.min() <= 0:
             raise ValueError(
                 f"material Poisson ratios (nu_LR={self.nu_LR}, nu_LT={self.nu_LT}, "
@@ -141,7 +142,9 @@ def _compliance(E1, E2, E3, G23, G13, G12, nu12, nu13, nu23) -> np.ndarray:
     return S
 
 
-def _compliance_LRT(m: Orthotropic) -> np.ndarray:
+def compliance_lrt(m) -> np.ndarray:
+    """6x6 compliance in the wood's own axes, Voigt order (L, R, T, RT, LT, LR), 1/Pa; ``m``
+    is anything carrying the nine engineering constants (E_L ... nu_RT)."""
     return _compliance(m.E_L, m.E_R, m.E_T, m.G_RT, m.G_LT, m.G_LR, m.nu_LR, m.nu_LT, m.nu_RT)
 
 

@@ -40,6 +40,7 @@ from pydantic import BaseModel, ConfigDict, Field, ValidationError, model_valida
 
 from forward.geometry import Material
 from forward.orthotropic import Orthotropic as SolidMaterial
+from forward.orthotropic import compliance_lrt
 from forward.orthotropic import isotropic as solid_isotropic
 from tonewright.errors import InputError, from_validation_error
 
@@ -89,13 +90,7 @@ class Orthotropic:
 
     def compliance_matrix(self) -> np.ndarray:
         """6x6 compliance in Voigt order (L, R, T, RT, LT, LR), 1/Pa; see the module docstring."""
-        S = np.zeros((6, 6))
-        S[0, 0], S[1, 1], S[2, 2] = 1 / self.E_L, 1 / self.E_R, 1 / self.E_T
-        S[0, 1] = S[1, 0] = -self.nu_LR / self.E_L
-        S[0, 2] = S[2, 0] = -self.nu_LT / self.E_L
-        S[1, 2] = S[2, 1] = -self.nu_RT / self.E_R
-        S[3, 3], S[4, 4], S[5, 5] = 1 / self.G_RT, 1 / self.G_LT, 1 / self.G_LR
-        return S
+        return compliance_lrt(self)
 
     def stiffness_matrix(self) -> np.ndarray:
         """6x6 stiffness (inverse compliance) in the same Voigt order, Pa."""
