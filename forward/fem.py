@@ -190,11 +190,23 @@ class Term:
 def assemble(
     n_dof: int, dofs_q: np.ndarray, weights: list[np.ndarray], B: list[np.ndarray]
 ) -> np.ndarray:
-    """Dense n_dof x n_dof matrix of sum_t sum_q weights_tq B_tqi B_tqj scattered to dofs_q."""
-    local = sum(
-        np.einsum("q,qi,qj->qij", w, b, b, optimize=False) for w, b in zip(weights, B, strict=True)
-    )
-    flat = (dofs_q[:, :, None] * n_dof + dofs_q[:, None, :]).ravel()
+    """Dense n_dof x n_dof matrix of sum_t sum_q weights_tq B_tqi B_tqj scattered to dofs_q.
+
+    The points of one element are consecutive (rows of ``dofs_q`` repeat): each element's
+    matrix is one product (B w)^T B over its points, so a profile with hundreds of kinks (and
+    as many quadrature sub-intervals) costs matrix products, not a q x n x n array.
+    """
+    change = np.flatnonzero(np.any(dofs_q[1:] != dofs_q[:-1], axis=1)) + 1
+    starts = np.concatenate(([0], change))
+    ends = np.concatenate((change, [dofs_q.shape[0]]))
+    n_loc = dofs_q.shape[1]
+    local = np.zeros((starts.size, n_loc, n_loc))
+    for w, b in zip(weights, B, strict=True):
+        bw = b * w[:, None]
+        for k, (s, e) in enumerate(zip(starts, ends, strict=True)):
+            local[k] += bw[s:e].T @ b[s:e]
+    dofs_e = dofs_q[starts]
+    flat = (dofs_e[:, :, None] * n_dof + dofs_e[:, None, :]).ravel()
     return np.bincount(flat, weights=local.ravel(), minlength=n_dof * n_dof).reshape(n_dof, n_dof)
 
 

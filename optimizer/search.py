@@ -118,23 +118,49 @@ def _global_search(
     return best_u
 
 
+def _cutter_residual(space, u: np.ndarray) -> np.ndarray:
+    """How far the cut is too tight for the cutter (0 when it fits), scaled like the other
+    hinges: 100 x (-margin x R), margin = min(1/R + depth'')."""
+    radius = getattr(space, "cutter_radius", 0.0)
+    if radius <= 0:
+        return np.zeros(0)
+    return np.array([100.0 * max(0.0, -space.curvature_margin(u) * radius)])
+
+
+def _cutter_jacobian(space, u: np.ndarray) -> np.ndarray:
+    # geometry only (no solve): a forward difference is cheap and accurate enough for a hinge
+    r0 = _cutter_residual(space, u)
+    J = np.zeros((r0.size, u.size))
+    for k in range(u.size):
+        step = 1e-6 if u[k] < 1.0 - 1e-6 else -1e-6
+        v = u.copy()
+        v[k] += step
+        J[:, k] = (_cutter_residual(space, v) - r0) / step
+    return J
+
+
 def polish(evaluator: Evaluator, u0: np.ndarray, settings: SearchSettings, progress) -> np.ndarray:
+    """Least squares on the goal and clearance residuals plus a cutter hinge, so that a start
+    whose cut is too tight (e.g. a larger neighbour's design) is pulled back into the shop
+    limits rather than abandoned."""
     space = evaluator.space
 
     def fun(u: np.ndarray) -> np.ndarray:
-        return evaluator.evaluate(u).residuals
+        return np.concatenate([evaluator.evaluate(u).residuals, _cutter_residual(space, u)])
 
     def jac(u: np.ndarray) -> np.ndarray:
         ev = evaluator.evaluate(u, jacobian=True)
         if progress:
             progress("polish", evaluator.solves, float(np.max(np.abs(ev.errors_cents))))
-        return ev.jacobian
+        return np.vstack([ev.jacobian, _cutter_jacobian(space, u)])
 
-    if space.curvature_margin(u0) < 0:
-        return u0
+    u0 = np.clip(np.asarray(u0, dtype=float), 0.0, 1.0)
+    # dogbox sees a bound as active only when the variable sits exactly on it; a variable a
+    # rounding error inside truncates every step to nothing and stops the polish at once
+    u0 = np.where(u0 < 1e-9, 0.0, np.where(u0 > 1.0 - 1e-9, 1.0, u0))
     sol = least_squares(
         fun,
-        np.clip(u0, 0.0, 1.0),
+        u0,
         jac=jac,
         bounds=(0.0, 1.0),
         method="dogbox",
@@ -145,11 +171,14 @@ def polish(evaluator: Evaluator, u0: np.ndarray, settings: SearchSettings, progr
         max_nfev=settings.polish_iterations,
     )
     u = sol.x
-    # the polish ignores the cutter; step back toward the start until the cutter fits
+    if space.curvature_margin(u) >= 0 or space.curvature_margin(u0) < 0:
+        return u
+    # the hinge let the cutter slip (it trades against the goals): step back toward the
+    # start, which fitted, until the cutter fits again
     t = 1.0
     while space.curvature_margin(u0 + t * (u - u0)) < 0 and t > 1e-3:
         t *= 0.5
-    return u0 + t * (u - u0) if t < 1.0 else u
+    return u0 + t * (u - u0)
 
 
 def verdict(evaluator: Evaluator, u: np.ndarray) -> tuple[bool, int, str, tuple[str, ...]]:
@@ -212,14 +241,32 @@ def design(
     evaluator: Evaluator,
     settings: SearchSettings = SearchSettings(),
     progress: Progress | None = None,
+    start: np.ndarray | None = None,
 ) -> DesignResult:
-    """Search the evaluator's design space for a design meeting its goals."""
+    """Search the evaluator's design space for a design meeting its goals.
+
+    ``start``: a design of a similar part (a neighbouring bar of an instrument, in the same
+    scaled variables). It is polished first; only when that polish misses does the global
+    search run, from the space's usual start.
+    """
     space = evaluator.space
     rng = np.random.default_rng(settings.seed)
     x0 = space.start()
     best_u, best_score = x0, np.inf
     attempts = 0
-    for attempt in range(settings.restarts + 1):
+    warm = None
+    if start is not None:
+        u = polish(evaluator, np.clip(np.asarray(start, dtype=float), 0.0, 1.0), settings, progress)
+        attempts = 1
+        if verdict(evaluator, u)[0]:
+            warm = u
+        else:
+            ev = evaluator.evaluate(u)
+            best_u = u
+            best_score = _penalised(
+                ev, space.curvature_margin(u), getattr(space, "cutter_radius", 0.0)
+            )
+    for attempt in range(0 if warm is not None else settings.restarts + 1):
         attempts = attempt + 1
         remaining = settings.budget - evaluator.solves
         if remaining <= 0:
@@ -242,6 +289,8 @@ def design(
         if score < best_score:
             best_u, best_score = u, score
         x0 = rng.uniform(0.1, 0.9, space.n)
+    if warm is not None:
+        best_u = warm
     # certify on an accuracy-controlled mesh; if the search mesh was too coarse for the final
     # shape, refine it and polish again (at most twice)
     for _ in range(2):

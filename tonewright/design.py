@@ -231,8 +231,14 @@ def fidelity_of(problem: Problem, override: str | None = None) -> str:
     return chosen
 
 
-def run_design(problem: Problem, progress=None, fidelity: str | None = None) -> Outcome:
-    """Beam-model design, then the staged corrections of the chosen fidelity."""
+def run_design(
+    problem: Problem,
+    progress=None,
+    fidelity: str | None = None,
+    start: np.ndarray | None = None,
+) -> Outcome:
+    """Beam-model design, then the staged corrections of the chosen fidelity. ``start``: the
+    scaled variables of a similar design to polish first (see ``optimizer.design``)."""
     settings = SearchSettings(seed=problem.table.seed, budget=problem.table.budget)
     fidelity = fidelity_of(problem, fidelity)
     material = None
@@ -243,7 +249,7 @@ def run_design(problem: Problem, progress=None, fidelity: str | None = None) -> 
             material = spec.to_solid(problem.table.thickness_axis)
         except InputError as exc:
             raise InputError(f"{exc}; or design with --beam-only") from None
-    result = design(problem.evaluator, settings, progress)
+    result = design(problem.evaluator, settings, progress, start)
     stages: list[tuple[Stage, CorrectedDesign]] = []
     if fidelity == "beam" or not result.converged:
         return Outcome(result, fidelity, ())

@@ -4,6 +4,7 @@ a part's partials on its target, then write the part, a result file and figures.
 from __future__ import annotations
 
 import json
+from collections.abc import Mapping
 from pathlib import Path
 from typing import Annotated, Any
 
@@ -57,11 +58,19 @@ def write_design(
     force: bool,
     console: Console,
     fidelity: str | None = None,
+    start: Mapping[str, float] | None = None,
 ) -> int:
-    """Run a design and write its outputs; returns the exit code (0 met, 1 out of reach)."""
+    """Run a design and write its outputs; returns the exit code (0 met, 1 out of reach).
+
+    ``start``: the design variables of a similar part (``result.json``'s ``design.variables``,
+    e.g. a neighbouring bar's) to polish first; ignored unless the variables are the same."""
     part_file, base = load_part(file)
     problem = build_problem(part_file, base, seed)
     fidelity = fidelity_of(problem, fidelity)
+    names = list(problem.space.names())
+    u0 = None
+    if start is not None and list(start) == names:
+        u0 = np.array([float(start[k]) for k in names])
     out = prepare_out_dir(out, OUTPUTS, force=force)
     with Progress(
         TextColumn("[bold]{task.description}"),
@@ -83,7 +92,7 @@ def write_design(
                 info=f"{solves} solves, worst partial {worst:.2f} cents",
             )
 
-        outcome = run_design(problem, progress, fidelity)
+        outcome = run_design(problem, progress, fidelity, u0)
     result = outcome.result
 
     table = part_table(problem, result.u)

@@ -31,7 +31,7 @@ import multiprocessing
 import os
 import sys
 from collections.abc import Callable, Sequence
-from concurrent.futures import FIRST_COMPLETED, ProcessPoolExecutor, wait
+from concurrent.futures import ProcessPoolExecutor
 from dataclasses import dataclass
 from pathlib import Path
 from typing import Annotated, Any
@@ -60,6 +60,7 @@ from tonewright.instrument import (
     plan_instrument,
 )
 from tonewright.materials import MaterialSpec
+from tonewright.scheduling import neighbour_parents, run_in_parent_order
 from tonewright.shop import Cutter, GcodeOptions, ShopOptions, write_all
 
 __all__ = [
@@ -187,6 +188,7 @@ class _Job:
     shop_fp: str | None
     fidelity: str | None
     attempts: int
+    start_from: str | None = None  # folder of the neighbour whose design this one starts from
 
 
 def _worker_init() -> None:
@@ -231,12 +233,26 @@ def _shortfall(result: dict[str, Any]) -> float:
     return 1.0 + worst
 
 
+def _neighbour_start(job: _Job) -> dict[str, float] | None:
+    """The design variables of the neighbour this bar starts from, if it met its target."""
+    if job.start_from is None:
+        return None
+    try:
+        result = json.loads((Path(job.start_from) / "result.json").read_text(encoding="utf-8"))
+    except (OSError, ValueError):
+        return None
+    variables = result.get("design", {}).get("variables") if result.get("converged") else None
+    return variables if isinstance(variables, dict) else None
+
+
 def _design_with_restarts(blank: Path, folder: Path, job: _Job) -> None:
     """`tonewright design` with the seeds seed, seed + 1, ... (``job.attempts`` at most) until
-    one meets the target; the best attempt's files are moved into ``folder``. A new seed starts
-    the global search elsewhere, which is what an evolution strategy stuck in a local minimum
-    needs."""
+    one meets the target; the best attempt's files are moved into ``folder``. The first
+    attempt polishes the neighbour's design first (``tonewright.scheduling``). A new seed
+    starts the global search elsewhere, which is what an evolution strategy stuck in a local
+    minimum needs."""
     seed0 = DesignTable.model_validate(job.part["design"]).seed
+    start = _neighbour_start(job)
     for stale in folder.glob(".attempt-*"):  # left by a run that was stopped
         _clear_dir(stale)
     best: tuple[float, Path, str] | None = None
@@ -246,7 +262,8 @@ def _design_with_restarts(blank: Path, folder: Path, job: _Job) -> None:
         tried.append(trial)
         text = io.StringIO()
         console = Console(file=text, width=160, color_system=None)
-        write_design(blank, trial, seed0 + k, True, console, job.fidelity)
+        first = start if k == 0 else None
+        write_design(blank, trial, seed0 + k, True, console, job.fidelity, first)
         result = json.loads((trial / "result.json").read_text(encoding="utf-8"))
         score = _shortfall(result)
         if best is None or score < best[0]:
@@ -262,8 +279,9 @@ def _design_with_restarts(blank: Path, folder: Path, job: _Job) -> None:
         _clear_dir(trial)
 
 
-def _work(job: _Job) -> dict[str, Any]:
-    """Design one bar (unless its design is current) and draw its shop files."""
+def _work(job: _Job, _parent: Any = None) -> dict[str, Any]:
+    """Design one bar (unless its design is current) and draw its shop files. (The parent's
+    output is not needed: the neighbour's design is read from its folder.)"""
     folder = Path(job.folder)
     out: dict[str, Any] = {"note": job.note, "error": None, "shop_error": None}
     try:
@@ -547,32 +565,28 @@ def _pool_context():
     return multiprocessing.get_context(name)
 
 
-def _run_jobs(jobs: list[_Job], n_workers: int, on_done: Callable[[dict], None]) -> None:
+def _run_jobs(
+    jobs: list[_Job], parents: list[int | None], n_workers: int, on_done: Callable[[dict], None]
+) -> None:
     with ProcessPoolExecutor(
         max_workers=n_workers, mp_context=_pool_context(), initializer=_worker_init
     ) as pool:
-        pending = {pool.submit(_work, job) for job in jobs}
-        try:
-            with Progress(
-                TextColumn("[bold]designing bars"),
-                BarColumn(),
-                MofNCompleteColumn(),
-                TextColumn("{task.fields[info]}"),
-                TimeElapsedColumn(),
-                console=Console(stderr=True),
-                transient=True,
-            ) as bar:
-                task = bar.add_task("bars", total=len(jobs), info="")
-                while pending:
-                    done, pending = wait(pending, return_when=FIRST_COMPLETED)
-                    for fut in done:
-                        outcome = fut.result()
-                        on_done(outcome)
-                        bar.update(task, advance=1, info=f"last: {outcome['note']}")
-        except BaseException:
-            for fut in pending:
-                fut.cancel()
-            raise
+        with Progress(
+            TextColumn("[bold]designing bars"),
+            BarColumn(),
+            MofNCompleteColumn(),
+            TextColumn("{task.fields[info]}"),
+            TimeElapsedColumn(),
+            console=Console(stderr=True),
+            transient=True,
+        ) as bar:
+            task = bar.add_task("bars", total=len(jobs), info="")
+
+            def finished(_: int, outcome: dict) -> None:
+                on_done(outcome)
+                bar.update(task, advance=1, info=f"last: {outcome['note']}")
+
+            run_in_parent_order(pool, _work, jobs, parents, finished)
 
 
 def run_instrument(
@@ -612,8 +626,10 @@ def run_instrument(
     atomic_write_text(out / MANIFEST, json.dumps(manifest, indent=2) + "\n", overwrite=True)
 
     work: list[_Job] = []
+    work_index: dict[int, int] = {}  # bar index -> index in `work`
     reused: list[str] = []
-    for b in plan.bars:
+    neighbour = neighbour_parents(len(plan.bars))
+    for i, b in enumerate(plan.bars):
         folder = out / BARS_DIR / b.note
         fp = bar_fingerprint(b, plan.material, fidelity, plan.attempts)
         sfp = shop_fingerprint(fp, options) if options is not None else None
@@ -627,6 +643,8 @@ def run_instrument(
             and _design_met(folder)
         )
         if redo or redraw:
+            parent = neighbour[i]
+            work_index[i] = len(work)
             work.append(
                 _Job(
                     note=b.note,
@@ -638,6 +656,9 @@ def run_instrument(
                     shop_fp=sfp,
                     fidelity=fidelity,
                     attempts=plan.attempts,
+                    start_from=None
+                    if parent is None
+                    else str(out / BARS_DIR / plan.bars[parent].note),
                 )
             )
         else:
@@ -646,7 +667,11 @@ def run_instrument(
     outcomes: dict[str, dict[str, Any]] = {}
     if work:
         try:
-            _run_jobs(work, min(n_workers, len(work)), lambda o: outcomes.update({o["note"]: o}))
+            # a bar waits for its neighbour only when that neighbour is designed in this run
+            parents = [work_index.get(neighbour[i]) for i in work_index]
+            _run_jobs(
+                work, parents, min(n_workers, len(work)), lambda o: outcomes.update({o["note"]: o})
+            )
         except KeyboardInterrupt:
             typer.echo(
                 "interrupted: finished bars are kept; run the same command again to continue",
