@@ -118,43 +118,60 @@ def _global_search(
     return best_u
 
 
-def _cutter_residual(space, u: np.ndarray) -> np.ndarray:
-    """How far the cut is too tight for the cutter (0 when it fits), scaled like the other
-    hinges: 100 x (-margin x R), margin = min(1/R + depth'')."""
+def _cutter_residual(space, u: np.ndarray, weight: float) -> np.ndarray:
+    """How far the cut is too tight for the cutter (0 when it fits): weight x (-margin x R),
+    margin = min(1/R + depth''), aimed 0.1 % inside the limit so that the hinge, which always
+    leaves a sliver, leaves it on the safe side."""
     radius = getattr(space, "cutter_radius", 0.0)
     if radius <= 0:
         return np.zeros(0)
-    return np.array([100.0 * max(0.0, -space.curvature_margin(u) * radius)])
+    return np.array([weight * max(0.0, 1e-3 - space.curvature_margin(u) * radius)])
 
 
-def _cutter_jacobian(space, u: np.ndarray) -> np.ndarray:
+def _cutter_jacobian(space, u: np.ndarray, weight: float) -> np.ndarray:
     # geometry only (no solve): a forward difference is cheap and accurate enough for a hinge
-    r0 = _cutter_residual(space, u)
+    r0 = _cutter_residual(space, u, weight)
     J = np.zeros((r0.size, u.size))
     for k in range(u.size):
         step = 1e-6 if u[k] < 1.0 - 1e-6 else -1e-6
         v = u.copy()
         v[k] += step
-        J[:, k] = (_cutter_residual(space, v) - r0) / step
+        J[:, k] = (_cutter_residual(space, v, weight) - r0) / step
     return J
 
 
 def polish(evaluator: Evaluator, u0: np.ndarray, settings: SearchSettings, progress) -> np.ndarray:
     """Least squares on the goal and clearance residuals plus a cutter hinge, so that a start
-    whose cut is too tight (e.g. a larger neighbour's design) is pulled back into the shop
-    limits rather than abandoned."""
+    whose cut is too tight (e.g. a larger neighbour's design) is pulled back within the shop
+    limit rather than abandoned. A hinge trades against the goals and may leave a sliver of
+    violation: its weight then grows tenfold (a penalty continuation), three times at most."""
+    space = evaluator.space
+    u = np.clip(np.asarray(u0, dtype=float), 0.0, 1.0)
+    for weight in (1e2, 1e3, 1e4, 1e5):
+        u = _polish_once(evaluator, u, settings, progress, weight)
+        if space.curvature_margin(u) >= 0:
+            return u
+    if space.curvature_margin(u0) < 0:
+        return u  # nothing that fits to step back to; the verdict reports the cutter
+    # step back toward the start, which fitted, until the cutter fits again
+    t = 1.0
+    while space.curvature_margin(u0 + t * (u - u0)) < 0 and t > 1e-3:
+        t *= 0.5
+    return u0 + t * (u - u0)
+
+
+def _polish_once(evaluator: Evaluator, u0: np.ndarray, settings, progress, weight: float):
     space = evaluator.space
 
     def fun(u: np.ndarray) -> np.ndarray:
-        return np.concatenate([evaluator.evaluate(u).residuals, _cutter_residual(space, u)])
+        return np.concatenate([evaluator.evaluate(u).residuals, _cutter_residual(space, u, weight)])
 
     def jac(u: np.ndarray) -> np.ndarray:
         ev = evaluator.evaluate(u, jacobian=True)
         if progress:
             progress("polish", evaluator.solves, float(np.max(np.abs(ev.errors_cents))))
-        return np.vstack([ev.jacobian, _cutter_jacobian(space, u)])
+        return np.vstack([ev.jacobian, _cutter_jacobian(space, u, weight)])
 
-    u0 = np.clip(np.asarray(u0, dtype=float), 0.0, 1.0)
     # dogbox sees a bound as active only when the variable sits exactly on it; a variable a
     # rounding error inside truncates every step to nothing and stops the polish at once
     u0 = np.where(u0 < 1e-9, 0.0, np.where(u0 > 1.0 - 1e-9, 1.0, u0))
@@ -170,15 +187,7 @@ def polish(evaluator: Evaluator, u0: np.ndarray, settings: SearchSettings, progr
         gtol=1e-12,
         max_nfev=settings.polish_iterations,
     )
-    u = sol.x
-    if space.curvature_margin(u) >= 0 or space.curvature_margin(u0) < 0:
-        return u
-    # the hinge let the cutter slip (it trades against the goals): step back toward the
-    # start, which fitted, until the cutter fits again
-    t = 1.0
-    while space.curvature_margin(u0 + t * (u - u0)) < 0 and t > 1e-3:
-        t *= 0.5
-    return u0 + t * (u - u0)
+    return sol.x
 
 
 def verdict(evaluator: Evaluator, u: np.ndarray) -> tuple[bool, int, str, tuple[str, ...]]:

@@ -26,6 +26,7 @@ from optimizer import (
     eigenvalue_gradients,
     mac,
 )
+from optimizer.search import polish
 from tonewright.pitch import strike_note_hz
 
 ROSEWOOD = Material(E=24e9, G=1.512e9, rho=1010.0, nu=0.476)  # library values, Pa and kg/m^3
@@ -263,3 +264,63 @@ def test_string_tuned_to_a_non_harmonic_profile():
     res = solve(space.part(result.u), {"transverse": 3}, tol_cents=0.01)
     f = np.array([res.frequency("transverse", k) for k in (1, 2, 3)])
     assert np.all(np.abs(1200 * np.log2(f / [g.f_hz for g in goals])) < 1.05)
+
+
+# ---------------------------------------------------------------------------------------------
+# Starting from a neighbour's design, and the polish at bounds and at the cutter's limit
+
+
+def test_a_neighbours_design_is_polished_to_the_target_in_few_solves():
+    # the next semitone up (6 % sharper) on a blank 3 % shorter: the C4 design, scaled, is
+    # a start a few tens of cents off, which the polish alone brings within tolerance
+    c4 = BarUndercut(_bar(ROSEWOOD), 0.022, min_thickness=0.004, end_keep=0.02)
+    first = design(Evaluator(c4, _goals(261.63, (1, 4, 10))), SearchSettings(seed=3))
+    assert first.converged
+    cs4 = BarUndercut(_bar(ROSEWOOD, L=0.388), 0.022, min_thickness=0.004, end_keep=0.02)
+    goals = _goals(277.18, (1, 4, 10))
+    stages: list[str] = []
+    warm = design(
+        Evaluator(cs4, goals),
+        SearchSettings(seed=3),
+        progress=lambda stage, solves, worst: stages.append(stage),
+        start=first.u,
+    )
+    # the polish alone, no global search
+    assert warm.converged and warm.attempts == 1 and warm.solves <= 40
+    assert stages and set(stages) == {"polish"}
+    errors = _check_independently(cs4, warm.u, goals)
+    assert np.all(np.abs(errors) <= np.array([g.tolerance_cents for g in goals]) + 0.05)
+
+
+def test_polish_moves_a_variable_that_sits_a_rounding_error_off_its_bound():
+    # scipy's dogbox treats a bound as active only when x equals it; 1e-15 inside used to
+    # truncate every step to nothing, and the polish returned its start unchanged
+    space = BarUndercut(_bar(ROSEWOOD), 0.022, min_thickness=0.004, end_keep=0.02)
+    goals = _goals(261.63, (1, 4, 10))
+    tuned = design(Evaluator(space, goals), SearchSettings(seed=3))
+    ev = Evaluator(space, _goals(261.63 * 2 ** (15 / 1200), (1, 4, 10)))  # 15 cents sharper
+    start = tuned.u.copy()
+    start[3] = 1e-15  # the fourth control point: there the Gauss-Newton step points outward
+    before = ev.evaluate(start).errors_cents
+    u = polish(ev, start, SearchSettings(), None)
+    after = ev.evaluate(u).errors_cents
+    assert np.max(np.abs(before)) > 10.0
+    assert np.max(np.abs(after)) < 0.01
+
+
+def test_polish_pulls_a_cut_too_tight_for_the_cutter_back_within_it():
+    # a 200 mm half-size blank with the 400 mm bar's design: the same scaled shape bends four
+    # times as sharply, too sharply for a 40 mm cutter; the polish must restore the cutter
+    big = BarUndercut(_bar(ROSEWOOD), 0.022, min_thickness=0.004, end_keep=0.02)
+    tuned = design(Evaluator(big, _goals(261.63, (1, 4, 10))), SearchSettings(seed=3))
+    small = BarUndercut(
+        _bar(ROSEWOOD, L=0.20, b=0.025, t0=0.011),
+        0.011,
+        min_thickness=0.002,
+        end_keep=0.01,
+        cutter_radius=0.04,
+    )
+    assert small.curvature_margin(tuned.u) < 0
+    ev = Evaluator(small, _goals(523.25, (1, 4, 10), tols=(1, 3, 5)))
+    u = polish(ev, tuned.u, SearchSettings(), None)
+    assert small.curvature_margin(u) >= 0.0
