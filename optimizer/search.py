@@ -209,6 +209,16 @@ def verdict(evaluator: Evaluator, u: np.ndarray) -> tuple[bool, int, str, tuple[
             f"out of reach within the limits: {g.label} is {ev.errors_cents[worst]:+.1f} cents "
             f"from its target (tolerance {g.tolerance_cents:g})"
         )
+        # a torsion or lateral mode at the edge of a partial's band: the search traded the
+        # partials against keeping it clear
+        crowded = [m for m in ev.unwanted if m.coincidence_hz < m.gap_hz < 1.25 * m.band_hz]
+        if crowded:
+            m = crowded[0]
+            binding = [
+                *binding,
+                f"clearance of unwanted modes ({m.family} mode {m.order} at {m.f_hz:.0f} Hz "
+                f"crowds the {m.nearest_goal}; try another width or thickness)",
+            ]
         if not binding:
             binding = [
                 "no single limit: the shape cannot reach these ratios within its cut "

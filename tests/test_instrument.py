@@ -425,6 +425,17 @@ def test_small_instrument_end_to_end(first_run):
     assert [r["note"] for r in res] == NOTES
     assert float(res[0]["tube_length_mm"]) == pytest.approx(151.8, abs=0.05)  # see above
     assert "meet their targets" in result.stdout
+    # bars grow outward from the middle one (tonewright.scheduling): the others polish their
+    # neighbour's design instead of searching from scratch
+    solves = {
+        n: json.loads((out / "bars" / n / "result.json").read_text("utf-8"))["design"][
+            "forward_solves"
+        ]
+        for n in NOTES
+    }
+    head = NOTES[len(NOTES) // 2]
+    others = [solves[n] for n in NOTES if n != head]
+    assert max(others) <= 15 < solves[head], solves
 
 
 def test_second_run_reuses_every_bar(first_run, tmp_path):
