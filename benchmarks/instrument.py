@@ -3,7 +3,7 @@
 Run from the repository root:
 ``python benchmarks/instrument.py [--jobs N] [--fidelity beam|plane] [--file F] [--profile P]``.
 
-Instrument: ``examples/workshop-marimba-three-partials.toml`` (C2 to D#6, Honduras rosewood,
+Instrument: ``examples/workshop-marimba-three-partials.toml`` (E2 to G6, Honduras rosewood,
 ``marimba-1-4-10`` on every bar; blanks proportioned so that three partials can be tuned with
 every torsion and lateral mode outside the partials' critical bands), model fidelity ``beam``
 (no 2D/3D correction) unless ``--fidelity plane``, no files written. Each bar runs as the
