@@ -8,8 +8,8 @@ block (its *head*) is searched from scratch and every other bar is started from 
 it on the side of its head, so the designs grow outward from the heads along chains.
 
 The parent of each bar is fixed by the range alone (not by timing or the number of workers),
-so a run repeats bit for bit whatever the pool size. A bar whose parent misses its target
-falls back to the global search.
+so which design a bar starts from never depends on the pool size. A bar whose parent misses
+its target falls back to the global search.
 """
 
 from __future__ import annotations
