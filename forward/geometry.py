@@ -24,6 +24,7 @@ __all__ = [
     "Support",
     "Tube",
     "constant",
+    "strongest_corners",
 ]
 
 
@@ -166,3 +167,26 @@ class String:
 
 
 Part = Bar | Tube | String
+
+
+def strongest_corners(
+    fields: tuple[Field, ...], points: np.ndarray, length: float, limit: int
+) -> np.ndarray:
+    """Up to ``limit`` of ``points`` (breakpoints) where the fields bend most sharply.
+
+    All of them when there are few (caliper stations, a designed cut's edges). From dense
+    stations (a design written at 1 mm or finer) only real corners, a change of slope over
+    0.05 (about 3 degrees), so that meshes put element ends at corners and keep a sampled smooth
+    curve coarse: between stations its slope changes by h'' dx, a few 1e-4.
+    """
+    points = np.asarray(points, dtype=float)
+    if points.size <= limit:
+        return points
+    eps = 1e-6 * length
+    turn = np.zeros(points.size)
+    for f in fields:
+        left = (f(points) - f(points - eps)) / eps
+        right = (f(points + eps) - f(points)) / eps
+        turn += np.abs(right - left)
+    order = np.argsort(-turn, kind="stable")[:limit]
+    return np.sort(points[order[turn[order] > 0.05]])

@@ -38,7 +38,7 @@ from forward.fem import (
     evaluate_field,
     field_matrices,
 )
-from forward.geometry import Bar, Part, String, Tube
+from forward.geometry import Bar, Part, String, Tube, strongest_corners
 from forward.sections import (
     cowper_hollow_circle,
     cowper_rectangle,
@@ -189,28 +189,13 @@ def _fixed_points(part: Part, max_breakpoint_nodes: int) -> np.ndarray:
 
 
 def _strongest_kinks(part: Part, limit: int) -> np.ndarray:
-    """Up to ``limit`` breakpoints where the section data bend most sharply.
-
-    All of them when there are few (caliper stations, a designed cut's edges); from dense
-    stations (a design written at 1 mm) only the real corners, so that elements do not straddle
-    a sharp change of section while smooth profiles keep a coarse mesh.
-    """
+    """Up to ``limit`` breakpoints where the section data bend most sharply (see
+    ``forward.geometry.strongest_corners``); none but the few for tubes and strings."""
     bps = _breakpoints(part)
     if bps.size <= limit:
         return bps
     fields = (part.thickness,) if isinstance(part, Bar) else ()
-    if not fields:
-        return np.empty(0)
-    eps = 1e-6 * part.length
-    turn = np.zeros(bps.size)
-    for f in fields:
-        left = (f(bps) - f(bps - eps)) / eps
-        right = (f(bps + eps) - f(bps)) / eps
-        turn += np.abs(right - left)
-    strong = turn > 0.05  # a change of slope over ~3 degrees: a corner, not a sampled curve
-    order = np.argsort(-turn)
-    keep = order[:limit][strong[order[:limit]]]
-    return np.sort(bps[keep])
+    return strongest_corners(fields, bps, part.length, limit) if fields else np.empty(0)
 
 
 def _breakpoints(part: Part) -> np.ndarray:

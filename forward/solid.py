@@ -49,7 +49,7 @@ import scipy.sparse as sp
 from scipy.sparse.linalg import LinearOperator, eigsh, splu
 
 from forward.classify import ClassifiedMode, ModeSet, classify_modes
-from forward.geometry import Field
+from forward.geometry import Field, strongest_corners
 from forward.orthotropic import Orthotropic, bar_axes, stiffness_matrix
 
 __all__ = [
@@ -240,15 +240,19 @@ def reentrant_kinks(length: float, thickness: Field) -> np.ndarray:
 
 
 def graded_stations(length: float, thickness: Field, n: int, grade: float = 1.0) -> np.ndarray:
-    """Element ends along x for ``n`` elements; every breakpoint inside (0, L) is an end.
+    """Element ends along x for ``n`` elements; the profile's breakpoints inside (0, L) are
+    ends, or, from dense stations (a design written at 1 mm), its real corners only, at most
+    n / 2 (``forward.geometry.strongest_corners``): the quadratic elements follow a sampled
+    smooth curve through their nodes.
 
-    Segments between breakpoints get elements in proportion to int h^-1/2 dx (the local
+    Segments between those ends get elements in proportion to int h^-1/2 dx (the local
     bending wavenumber of a beam goes as h^-1/2), at least one each; inside a segment the ends
     crowd toward re-entrant kinks by ``power_spacing`` with exponent ``grade``. Returns sorted
-    stations from 0 to L (more than n + 1 only if the profile has more than n segments).
+    stations from 0 to L.
     """
     bp = np.asarray(thickness.breakpoints, dtype=float)
     inner = bp[(bp > 1e-9 * length) & (bp < length * (1.0 - 1e-9))]
+    inner = strongest_corners((thickness,), inner, length, max(1, n // 2))
     ends = np.unique(np.concatenate([[0.0], inner, [length]]))
     a, b = ends[:-1], ends[1:]
     t = (np.arange(16) + 0.5) / 16.0  # midpoint rule inside each segment

@@ -48,7 +48,7 @@ from threadpoolctl import threadpool_limits
 import tonewright
 from tonewright.cli_support import atomic_write_bytes, atomic_write_text, guarded
 from tonewright.commands.design import OUTPUTS as DESIGN_OUTPUTS
-from tonewright.commands.design import write_design
+from tonewright.commands.design import UNWANTED_CAVEAT, write_design
 from tonewright.commands.shop import shop_part_from
 from tonewright.design import DesignTable
 from tonewright.errors import InputError
@@ -536,7 +536,8 @@ def _print_table(console: Console, rows: Sequence[BarRow]) -> None:
     console.print(table)
     console.print(
         "  lengths in mm; cents off: each tuned partial from its target; nearest: the torsional "
-        "(T) or lateral (L) mode nearest a tuned partial, and how far from it"
+        "(T) or lateral (L) mode nearest a tuned partial, and how far from it, by the "
+        f"{UNWANTED_CAVEAT}"
     )
     for r in rows:
         if r.status != "met":
