@@ -4,7 +4,12 @@
 ``design`` runs CMA-ES then a least-squares polish and returns a ``DesignResult``.
 """
 
-from optimizer.correction import CorrectedDesign, CorrectionStep, corrected_design
+from optimizer.correction import (
+    CorrectedDesign,
+    CorrectionStep,
+    HighFidelityModes,
+    corrected_design,
+)
 from optimizer.objective import Clearance, Evaluation, Evaluator, Goal, UnwantedMode, mac
 from optimizer.search import DesignResult, SearchSettings, design
 from optimizer.sensitivity import eigenvalue_gradients, mode_densities
@@ -20,6 +25,7 @@ __all__ = [
     "Evaluation",
     "Evaluator",
     "Goal",
+    "HighFidelityModes",
     "SearchSettings",
     "StringDensity",
     "TubeDesign",

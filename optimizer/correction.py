@@ -25,12 +25,22 @@ from dataclasses import dataclass, replace
 import numpy as np
 
 from optimizer.objective import Evaluator, Goal
-from optimizer.search import DesignResult, SearchSettings, polish, verdict
+from optimizer.search import DesignResult, SearchSettings, design, polish, verdict
 
-__all__ = ["CorrectedDesign", "CorrectionStep", "corrected_design"]
+__all__ = ["CorrectedDesign", "CorrectionStep", "HighFidelityModes", "corrected_design"]
 
-HighFidelity = Callable[[np.ndarray, Sequence[Goal]], np.ndarray]
-"""``hf(u, goals) -> frequencies (Hz)`` of the goals' modes in the high-fidelity model."""
+HighFidelity = Callable[[np.ndarray, Sequence[Goal]], "np.ndarray | HighFidelityModes"]
+"""``hf(u, goals)``: frequencies (Hz) of the goals' modes in the high-fidelity model, or a
+``HighFidelityModes`` that also carries the clearance families' modes."""
+
+
+@dataclass(frozen=True)
+class HighFidelityModes:
+    """A high-fidelity solve's goal frequencies and, by family, the frequencies (ascending) of
+    the modes that must keep clear of the partials (torsion, lateral)."""
+
+    goals_hz: np.ndarray
+    families: dict[str, np.ndarray]
 
 
 @dataclass(frozen=True)
@@ -39,6 +49,7 @@ class CorrectionStep:
     high_fidelity_hz: np.ndarray
     errors_cents: np.ndarray  # high-fidelity against the original goals
     defect_cents: np.ndarray
+    clear: bool | None = None  # unwanted modes clear in the high-fidelity model (None: unseen)
 
 
 @dataclass(frozen=True, eq=False)
@@ -69,16 +80,28 @@ def corrected_design(
     u = start.u
     result = start
     steps: list[CorrectionStep] = []
+    scale0 = dict(evaluator.unwanted_scale)
     try:
         for i in range(max_steps):
-            beam = evaluator.evaluate(u).achieved_hz
-            hi = np.asarray(high_fidelity(u, goals), dtype=float)
+            beam_ev = evaluator.evaluate(u)
+            beam = beam_ev.achieved_hz
+            seen = high_fidelity(u, goals)
+            clear = None
+            if isinstance(seen, HighFidelityModes):
+                hi = np.asarray(seen.goals_hz, dtype=float)
+                if evaluator.clearance is not None:
+                    # judge the clearance on the high-fidelity modes: scale each beam mode by
+                    # the ratio the high-fidelity model shows at this design
+                    evaluator.set_unwanted_scale(_mode_ratios(seen.families, beam_ev.family_hz))
+                    clear = evaluator.evaluate(u).clearance_ok
+            else:
+                hi = np.asarray(seen, dtype=float)
             errors = _cents(hi, target)
             defect = _cents(hi, beam)
-            steps.append(CorrectionStep(beam, hi, errors, defect))
+            steps.append(CorrectionStep(beam, hi, errors, defect, clear))
             if progress:
                 progress("correct", evaluator.solves, float(np.max(np.abs(errors))))
-            if np.all(np.abs(errors) <= tol) or i == max_steps - 1:
+            if (np.all(np.abs(errors) <= tol) and clear is not False) or i == max_steps - 1:
                 break
             shifted = [
                 replace(g, f_hz=g.f_hz * 2.0 ** (-d / 1200.0))
@@ -86,6 +109,12 @@ def corrected_design(
             ]
             evaluator.set_goals(shifted)
             u = polish(evaluator, u, settings, progress)
+            if not verdict(evaluator, u)[0]:
+                # the corrected beam model has no solution next to this design (typically an
+                # unwanted mode the high-fidelity model moved into a band): search it afresh,
+                # beam solves being cheap beside high-fidelity ones
+                fresh = replace(settings, budget=evaluator.solves + settings.budget)
+                u = design(evaluator, fresh, progress, start=u).u
         _, status, message, binding = verdict(evaluator, u)
         if status == 1 and np.all(np.abs(steps[-1].errors_cents) <= tol):
             # the beam misses its shifted goals by the defect's drift only: the model that
@@ -103,9 +132,20 @@ def corrected_design(
         )
     finally:
         evaluator.set_goals(goals)
+        evaluator.set_unwanted_scale(scale0)
     last = steps[-1]
     met = bool(np.all(np.abs(last.errors_cents) <= tol))
-    if met and result.status in (0, 1):
+    if met and last.clear is False:
+        met = False
+        bad = [m for m in result.evaluation.unwanted if not m.clear]
+        m = bad[0] if bad else None
+        message = "an unwanted mode is too near a partial in the certifying model" + (
+            f": {m.family} mode {m.order} at {m.f_hz:.1f} Hz, {m.gap_hz:.1f} Hz from the "
+            f"{m.nearest_goal} (keep {m.band_hz:.0f} Hz clear)"
+            if m
+            else ""
+        )
+    elif met and result.status in (0, 1):
         message = f"meets every goal in the certifying model ({len(steps) - 1} correction(s))"
     elif met:
         message = result.message
@@ -117,3 +157,16 @@ def corrected_design(
         )
     converged = met and result.status in (0, 1)
     return CorrectedDesign(result=result, steps=tuple(steps), converged=converged, message=message)
+
+
+def _mode_ratios(high: dict[str, np.ndarray], beam: dict[str, np.ndarray]) -> dict[str, np.ndarray]:
+    """Per family, high-fidelity over beam frequency of each mode order both models found."""
+    out = {}
+    for fam, f_hi in high.items():
+        f_beam = beam.get(fam)
+        if f_beam is None:
+            continue
+        n = min(np.size(f_hi), np.size(f_beam))
+        if n:
+            out[fam] = np.asarray(f_hi[:n], dtype=float) / np.asarray(f_beam[:n], dtype=float)
+    return out

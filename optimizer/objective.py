@@ -42,6 +42,7 @@ from optimizer.sensitivity import eigenvalue_gradients
 __all__ = ["Clearance", "Evaluation", "Evaluator", "Goal", "UnwantedMode", "mac"]
 
 CENTS_PER_LN = 1200.0 / np.log(2.0)
+CLEAR_MARGIN = 0.01  # the clearance hinge pushes modes this fraction beyond the band
 
 
 @dataclass(frozen=True)
@@ -97,6 +98,8 @@ class Evaluation:
     jacobian: np.ndarray | None
     shapes: dict[str, np.ndarray] = field(repr=False, default_factory=dict)
     mac_ok: bool = True
+    family_hz: dict[str, np.ndarray] = field(repr=False, default_factory=dict)  # beam, unscaled
+    clearance_ok: bool = True  # no unwanted mode inside a band (exact bands, not the hinge's)
 
     def within_tolerance(self, goals: Sequence[Goal]) -> bool:
         tol = np.array([g.tolerance_cents for g in goals])
@@ -134,6 +137,7 @@ class Evaluator:
         self.solves = 0
         self._reference_shapes: dict[str, np.ndarray] | None = None
         self._cache: dict[bytes, Evaluation] = {}
+        self.unwanted_scale: dict[str, np.ndarray] = {}
         self.degree = degree or self._converged_degree(space.part(space.start()))
         self._set_mesh()
 
@@ -142,6 +146,20 @@ class Evaluator:
         The clearance keeps referring to the sounding partials, ``partials_hz``."""
         self.goals = tuple(goals)
         self._cache.clear()
+
+    def set_unwanted_scale(self, scale: dict[str, np.ndarray]) -> None:
+        """Multiply the beam frequencies of the clearance families' modes (by order) by these
+        ratios, e.g. 3D over beam at the current design: the clearance is then judged on
+        frequencies a higher-fidelity model confirmed. Orders beyond a family's array keep its
+        last ratio; an empty dict restores the beam model."""
+        self.unwanted_scale = {k: np.asarray(v, dtype=float) for k, v in scale.items()}
+        self._cache.clear()
+
+    def _ratios(self, family: str, n: int) -> np.ndarray:
+        r = self.unwanted_scale.get(family)
+        if r is None or r.size == 0:
+            return np.ones(n)
+        return np.concatenate([r[:n], np.full(max(0, n - r.size), r[-1])])
 
     def _set_mesh(self) -> None:
         self._fixed_disc: Discretisation | None = None
@@ -240,6 +258,7 @@ class Evaluator:
         found, hinge, which = [], [], []
         for fam in c.families:
             f = np.sqrt(np.maximum(modes[fam][0], 0.0)) / (2 * np.pi)
+            f = f * self._ratios(fam, f.size)
             for k, fk in enumerate(f):
                 if fk > 1.3 * achieved.max():
                     break
@@ -258,11 +277,13 @@ class Evaluator:
                 )
             for j in range(achieved.size):
                 gaps = np.abs(f - achieved[j])
-                inside = (gaps > c.coincidence_hz) & (gaps < band[j])
-                v = np.where(inside, band[j] - gaps, 0.0)  # always push the mode away
+                # aim 1 % beyond the band: a hinge converges onto its edge from inside
+                edge = (1.0 + CLEAR_MARGIN) * band[j]
+                inside = (gaps > c.coincidence_hz) & (gaps < edge)
+                v = np.where(inside, edge - gaps, 0.0)  # always push the mode away
                 k = int(np.argmax(v)) if v.size else 0
                 hinge.append(float(v[k]) if v.size else 0.0)
-                which.append((fam, k, j, float(gaps[k]) if v.size else 0.0, float(band[j])))
+                which.append((fam, k, j, float(gaps[k]) if v.size else 0.0, float(edge)))
         return found, np.array(hinge), which
 
     def evaluate(self, u: np.ndarray, jacobian: bool = False) -> Evaluation:
@@ -286,11 +307,42 @@ class Evaluator:
         J = None
         if jacobian:
             J = self._jacobian(u, part, disc, modes, uses, achieved, which, scale, cw)
-        ev = Evaluation(u, achieved, errors, tuple(unwanted), hinge, residuals, J, shapes, mac_ok)
+        family_hz = {
+            fam: np.sqrt(np.maximum(lam, 0.0)) / (2 * np.pi) for fam, (lam, _, _) in modes.items()
+        }
+        clearance_ok = self._clearance_ok(modes)
+        ev = Evaluation(
+            u,
+            achieved,
+            errors,
+            tuple(unwanted),
+            hinge,
+            residuals,
+            J,
+            shapes,
+            mac_ok,
+            family_hz,
+            clearance_ok,
+        )
         if len(self._cache) > 64:
             self._cache.clear()
         self._cache[key] = ev
         return ev
+
+    def _clearance_ok(self, modes) -> bool:
+        """True when no clearance-family mode lies inside a partial's band (and outside the
+        coincidence window): the verdict's test, on the exact bands."""
+        if not self.clearance:
+            return True
+        c = self.clearance
+        band = c.keep_clear_hz(self.partials_hz)
+        for fam in c.families:
+            f = np.sqrt(np.maximum(modes[fam][0], 0.0)) / (2 * np.pi)
+            f = f * self._ratios(fam, f.size)
+            gaps = np.abs(f[:, None] - self.partials_hz[None, :])
+            if np.any((gaps > c.coincidence_hz) & (gaps < band[None, :])):
+                return False
+        return True
 
     def _track(self, shapes: dict[str, np.ndarray]) -> bool:
         """True when every goal family's modes still match the first design's by shape."""
@@ -349,8 +401,9 @@ class Evaluator:
         for r, (fam, k, j, gap, band) in enumerate(which):
             if not coincidence < gap < band:
                 continue
-            f_m = np.sqrt(modes[fam][0][k]) / (2 * np.pi)
-            df_m = dlam[fam][k] / (8 * np.pi**2 * f_m)  # df/dlambda = 1 / (8 pi^2 f)
-            dgap = np.sign(f_m - self.partials_hz[j]) * df_m
+            f_b = np.sqrt(modes[fam][0][k]) / (2 * np.pi)
+            ratio = self._ratios(fam, k + 1)[k]
+            df_m = ratio * dlam[fam][k] / (8 * np.pi**2 * f_b)  # df/dlambda = 1 / (8 pi^2 f)
+            dgap = np.sign(ratio * f_b - self.partials_hz[j]) * df_m
             J_clear[r] = -dgap * cw * 100.0 / band
         return np.vstack([J_goals, J_clear])

@@ -112,7 +112,7 @@ def _global_search(
         worst = float(np.max(np.abs(ev.errors_cents)))
         if progress:
             progress("search", evaluator.solves, worst)
-        if worst < handover and np.all(ev.clearance_violation == 0) and scored[k][2]:
+        if worst < handover and ev.clearance_ok and scored[k][2]:
             best_u = np.asarray(X[k], dtype=float)
             break
     return best_u
@@ -226,7 +226,7 @@ def verdict(evaluator: Evaluator, u: np.ndarray) -> tuple[bool, int, str, tuple[
                 "another blank"
             ]
         return False, 1, msg, tuple(binding)
-    if np.any(ev.clearance_violation > 0):
+    if not ev.clearance_ok:
         bad = [m for m in ev.unwanted if not m.clear]
         m = bad[0] if bad else ev.unwanted[0]
         msg = (

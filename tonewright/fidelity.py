@@ -20,7 +20,7 @@ import numpy as np
 from forward import Bar
 from forward.plane import PlaneMesh, plane_modes
 from forward.solid import SolidMesh, solid_modes
-from optimizer import Goal
+from optimizer import Goal, HighFidelityModes
 from tonewright.errors import InputError
 
 __all__ = ["FIDELITIES", "Stage", "high_fidelity_function", "stages_for", "top_face_nodes"]
@@ -57,11 +57,15 @@ def check_bar(part: Bar) -> None:
 
 
 def high_fidelity_function(stage: Stage, space, blank_thickness: float, width: float, material):
-    """``hf(u, goals) -> Hz`` of each goal's mode in the stage's model."""
+    """``hf(u, goals)``: Hz of each goal's mode in the stage's model; the 3D stages also return
+    the torsion and lateral modes (``HighFidelityModes``), so the clearance of unwanted modes
+    is judged in 3D, not by the beam, whose torsion modes are far off on an undercut bar."""
 
-    def hf(u: np.ndarray, goals: Sequence[Goal]) -> np.ndarray:
+    def hf(u: np.ndarray, goals: Sequence[Goal]) -> np.ndarray | HighFidelityModes:
         part = space.part(u)
-        top = 1.25 * max(g.f_hz for g in goals)
+        # 3D: up to past the band of the top partial (under 15 % of it each side), for the
+        # unwanted modes
+        top = (1.25 if stage.model == "plane" else 1.35) * max(g.f_hz for g in goals)
         if stage.model == "plane":
             if any(g.family != "bending" for g in goals):
                 raise InputError("the 2D model checks bending partials only: use fidelity 'solid'")
@@ -83,7 +87,10 @@ def high_fidelity_function(stage: Stage, space, blank_thickness: float, width: f
                     f"the {stage.label} found no {g.family} mode {g.order} below {top:.0f} Hz"
                 )
             out.append(fam[g.order - 1])
-        return np.array(out)
+        if stage.model == "plane":
+            return np.array(out)
+        families = {f: res.family_hz(f) for f in ("torsion", "lateral")}
+        return HighFidelityModes(np.array(out), families)
 
     return hf
 

@@ -49,6 +49,17 @@ UNWANTED_CAVEAT = (
 )
 
 
+UNWANTED_3D = "3D model: the beam's modes scaled to the 3D solve of this very design"
+
+
+def _unwanted_model(outcome) -> str:
+    """Which model judged the clearance of the unwanted modes in this outcome."""
+    if outcome.stages and outcome.stages[-1][0].model == "solid":
+        if outcome.stages[-1][1].steps[-1].clear is not None:
+            return UNWANTED_3D
+    return UNWANTED_CAVEAT
+
+
 def _json_ready(obj: Any) -> Any:
     if isinstance(obj, dict):
         return {k: _json_ready(v) for k, v in obj.items()}
@@ -150,7 +161,7 @@ def write_design(
         # partials are followed by order within their family and confirmed by shape (MAC)
         "modes_tracked_by_shape": bool(result.evaluation.mac_ok),
         "unwanted_modes": unwanted,
-        "unwanted_modes_model": UNWANTED_CAVEAT,
+        "unwanted_modes_model": _unwanted_model(outcome),
         "mode1_nodes_mm": nodes,
         "design": {
             "variables": dict(zip(problem.space.names(), map(float, result.u), strict=True)),
@@ -264,9 +275,10 @@ def _print_summary(console: Console, payload: dict, out: Path) -> None:
     console.print(table)
     near = sorted(payload["unwanted_modes"], key=lambda m: m["gap_hz"] / m["keep_clear_hz"])[:3]
     if near:
-        console.print(f"  unwanted modes ({UNWANTED_CAVEAT}):")
+        console.print(f"  unwanted modes ({payload['unwanted_modes_model']}):")
+    in_3d = payload["unwanted_modes_model"].startswith("3D")
     for m in near:
-        flag = "clear in the beam model" if m["clear"] else "TOO NEAR"
+        flag = ("clear in 3D" if in_3d else "clear in the beam model") if m["clear"] else "TOO NEAR"
         console.print(
             f"  {m['family']} {m['order']} at {m['frequency_hz']:.1f} Hz: "
             f"{m['gap_hz']:.1f} Hz from {m['nearest_partial']} "
