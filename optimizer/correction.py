@@ -15,6 +15,14 @@ correction approach", Computing Suppl. 5, 1-32):
 repeated until the high-fidelity frequencies meet the original goals within tolerance. The
 defect varies slowly with the design, so a few iterations suffice; each costs one
 high-fidelity solve.
+
+A high-fidelity model that also returns the clearance families' modes (``HighFidelityModes``,
+the 3D model) corrects those the same way: each beam mode is scaled by its high-fidelity
+ratio r_m = f_hi,m / f_beam,m at the current design (``Evaluator.set_unwanted_scale``), so
+the polish keeps the modes the high-fidelity model sees out of the bands, and the loop ends
+only when the high-fidelity modes themselves are clear. If the corrected beam model has no
+solution beside the current design, it is searched afresh; if that search fails too, the
+loop stops and reports the limit that binds.
 """
 
 from __future__ import annotations
@@ -81,6 +89,7 @@ def corrected_design(
     result = start
     steps: list[CorrectionStep] = []
     scale0 = dict(evaluator.unwanted_scale)
+    stuck = False
     try:
         for i in range(max_steps):
             beam_ev = evaluator.evaluate(u)
@@ -103,6 +112,8 @@ def corrected_design(
                 progress("correct", evaluator.solves, float(np.max(np.abs(errors))))
             if (np.all(np.abs(errors) <= tol) and clear is not False) or i == max_steps - 1:
                 break
+            if stuck:  # the corrected beam model had no solution: more checks cannot help
+                break
             shifted = [
                 replace(g, f_hz=g.f_hz * 2.0 ** (-d / 1200.0))
                 for g, d in zip(goals, defect, strict=True)
@@ -114,7 +125,8 @@ def corrected_design(
                 # unwanted mode the high-fidelity model moved into a band): search it afresh,
                 # beam solves being cheap beside high-fidelity ones
                 fresh = replace(settings, budget=evaluator.solves + settings.budget)
-                u = design(evaluator, fresh, progress, start=u).u
+                again = design(evaluator, fresh, progress, start=u)
+                u, stuck = again.u, not again.converged
         _, status, message, binding = verdict(evaluator, u)
         if status == 1 and np.all(np.abs(steps[-1].errors_cents) <= tol):
             # the beam misses its shifted goals by the defect's drift only: the model that
