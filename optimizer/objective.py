@@ -248,14 +248,18 @@ class Evaluator:
                 uses.append([(g.family, g.order - 1, 1.0)])
         return np.array(achieved), uses
 
-    def _unwanted(self, modes, achieved: np.ndarray) -> tuple[list[UnwantedMode], np.ndarray, list]:
-        """Unwanted modes up to 1.3 x the top goal (for the report) and a fixed-size hinge:
-        for each clearance family and goal, the worst violation by any mode of the family."""
+    def _unwanted(
+        self, modes, achieved: np.ndarray
+    ) -> tuple[list[UnwantedMode], np.ndarray, list, bool]:
+        """Unwanted modes up to 1.3 x the top goal (for the report), a fixed-size hinge (for
+        each clearance family and goal, the worst violation by any mode of the family), and
+        whether every mode is clear of the exact bands (the verdict's test)."""
         if not self.clearance:
-            return [], np.zeros(0), []
+            return [], np.zeros(0), [], True
         c = self.clearance
         band = c.keep_clear_hz(achieved)
         found, hinge, which = [], [], []
+        clear = True
         for fam in c.families:
             f = np.sqrt(np.maximum(modes[fam][0], 0.0)) / (2 * np.pi)
             f = f * self._ratios(fam, f.size)
@@ -277,6 +281,7 @@ class Evaluator:
                 )
             for j in range(achieved.size):
                 gaps = np.abs(f - achieved[j])
+                clear = clear and not np.any((gaps > c.coincidence_hz) & (gaps < band[j]))
                 # aim 1 % beyond the band: a hinge converges onto its edge from inside
                 edge = (1.0 + CLEAR_MARGIN) * band[j]
                 inside = (gaps > c.coincidence_hz) & (gaps < edge)
@@ -284,7 +289,7 @@ class Evaluator:
                 k = int(np.argmax(v)) if v.size else 0
                 hinge.append(float(v[k]) if v.size else 0.0)
                 which.append((fam, k, j, float(gaps[k]) if v.size else 0.0, float(edge)))
-        return found, np.array(hinge), which
+        return found, np.array(hinge), which, bool(clear)
 
     def evaluate(self, u: np.ndarray, jacobian: bool = False) -> Evaluation:
         u = np.asarray(u, dtype=float)
@@ -298,7 +303,7 @@ class Evaluator:
             [CENTS_PER_LN * np.log(f / g.f_hz) for f, g in zip(achieved, self.goals, strict=True)]
         )
         scale = np.array([g.weight / g.tolerance_cents for g in self.goals])
-        unwanted, hinge, which = self._unwanted(modes, self.partials_hz)
+        unwanted, hinge, which, clearance_ok = self._unwanted(modes, self.partials_hz)
         cw = self.clearance.weight if self.clearance else 0.0
         band = np.array([w[4] for w in which])
         residuals = np.concatenate([errors * scale, cw * 100.0 * hinge / np.maximum(band, 1e-9)])
@@ -310,7 +315,6 @@ class Evaluator:
         family_hz = {
             fam: np.sqrt(np.maximum(lam, 0.0)) / (2 * np.pi) for fam, (lam, _, _) in modes.items()
         }
-        clearance_ok = self._clearance_ok(modes)
         ev = Evaluation(
             u,
             achieved,
@@ -328,21 +332,6 @@ class Evaluator:
             self._cache.clear()
         self._cache[key] = ev
         return ev
-
-    def _clearance_ok(self, modes) -> bool:
-        """True when no clearance-family mode lies inside a partial's band (and outside the
-        coincidence window): the verdict's test, on the exact bands."""
-        if not self.clearance:
-            return True
-        c = self.clearance
-        band = c.keep_clear_hz(self.partials_hz)
-        for fam in c.families:
-            f = np.sqrt(np.maximum(modes[fam][0], 0.0)) / (2 * np.pi)
-            f = f * self._ratios(fam, f.size)
-            gaps = np.abs(f[:, None] - self.partials_hz[None, :])
-            if np.any((gaps > c.coincidence_hz) & (gaps < band[None, :])):
-                return False
-        return True
 
     def _track(self, shapes: dict[str, np.ndarray]) -> bool:
         """True when every goal family's modes still match the first design's by shape."""
