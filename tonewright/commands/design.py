@@ -41,10 +41,10 @@ CAUTION = (
 )
 
 
-# measured: on the demo bar the beam's torsion modes were 162 and 219 cents below the 3D
-# model's and its lateral modes 79-113 cents above (README, "Torsion and lateral modes")
+# measured with 'verify' on demo-sized bars 50 and 60 mm wide: the beam's first two torsion
+# modes 162-304 cents below the 3D model's, its lateral modes 79-145 cents above (README)
 UNWANTED_CAVEAT = (
-    "beam model; on an undercut bar its torsion and lateral modes can be 100-270 cents off, "
+    "beam model; on an undercut bar its torsion and lateral modes can be 80-300 cents off, "
     "so check them in 3D with 'tonewright verify' before cutting"
 )
 
