@@ -275,7 +275,7 @@ def design(
     attempts = 0
     warm = None
     if start is not None:
-        u = polish(evaluator, np.clip(np.asarray(start, dtype=float), 0.0, 1.0), settings, progress)
+        u = polish(evaluator, np.asarray(start, dtype=float), settings, progress)  # clips
         attempts = 1
         if verdict(evaluator, u)[0]:
             warm = u
