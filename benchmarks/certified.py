@@ -16,8 +16,8 @@ _ROOT = _HERE.parent
 
 import numpy as np  # noqa: E402
 from threadpoolctl import threadpool_limits  # noqa: E402
+from tonewright.forward.solid import SolidMesh, solid_modes  # noqa: E402
 
-from forward.solid import SolidMesh, solid_modes  # noqa: E402
 from tonewright.design import build_problem, run_design  # noqa: E402
 from tonewright.partfile import load_part  # noqa: E402
 

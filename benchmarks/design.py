@@ -20,9 +20,9 @@ sys.path[:] = [p for p in sys.path if Path(p or ".").resolve() != _HERE]
 
 import numpy as np  # noqa: E402
 from threadpoolctl import threadpool_limits  # noqa: E402
+from tonewright.forward import Bar, constant  # noqa: E402
+from tonewright.optimizer import BarUndercut, Evaluator, Goal, SearchSettings, design  # noqa: E402
 
-from forward import Bar, constant  # noqa: E402
-from optimizer import BarUndercut, Evaluator, Goal, SearchSettings, design  # noqa: E402
 from tonewright.materials import load_material  # noqa: E402
 
 

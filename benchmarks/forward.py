@@ -50,9 +50,9 @@ sys.path[:] = [p for p in sys.path if Path(p or ".").resolve() != _HERE]
 import numpy as np  # noqa: E402
 import scipy.linalg  # noqa: E402
 from threadpoolctl import threadpool_limits  # noqa: E402
+from tonewright.forward import Bar, solve  # noqa: E402
+from tonewright.forward.sections import cowper_rectangle, rectangle_section  # noqa: E402
 
-from forward import Bar, solve  # noqa: E402
-from forward.sections import cowper_rectangle, rectangle_section  # noqa: E402
 from tonewright.partfile import load_part  # noqa: E402
 
 EXAMPLE = _HERE.parent / "examples" / "workshop-f4-bar.toml"

@@ -3,7 +3,7 @@
 Public entry points: the part descriptions in ``forward.geometry`` and ``forward.solve``.
 """
 
-from forward.geometry import (
+from tonewright.forward.geometry import (
     Bar,
     Field,
     Hole,
@@ -15,7 +15,7 @@ from forward.geometry import (
     Tube,
     constant,
 )
-from forward.modal import FAMILIES, ModalResult, Mode, families_of, solve
+from tonewright.forward.modal import FAMILIES, ModalResult, Mode, families_of, solve
 
 __all__ = [
     "FAMILIES",

@@ -24,8 +24,7 @@ import itertools
 from dataclasses import dataclass
 
 import numpy as np
-
-from forward.basis import c0_basis, c1_basis, gauss_legendre
+from tonewright.forward.basis import c0_basis, c1_basis, gauss_legendre
 
 __all__ = [
     "FieldLayout",

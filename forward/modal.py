@@ -25,8 +25,7 @@ from dataclasses import dataclass, field
 
 import numpy as np
 import scipy.linalg
-
-from forward.fem import (
+from tonewright.forward.fem import (
     FieldLayout,
     Quadrature,
     Term,
@@ -38,8 +37,8 @@ from forward.fem import (
     evaluate_field,
     field_matrices,
 )
-from forward.geometry import Bar, Part, String, Tube, strongest_corners
-from forward.sections import (
+from tonewright.forward.geometry import Bar, Part, String, Tube, strongest_corners
+from tonewright.forward.sections import (
     cowper_hollow_circle,
     cowper_rectangle,
     hole_chord,

@@ -38,8 +38,7 @@ from dataclasses import dataclass
 from typing import Literal, NamedTuple
 
 import numpy as np
-
-from forward.geometry import Material
+from tonewright.forward.geometry import Material
 
 __all__ = [
     "BarAxes",

@@ -27,11 +27,10 @@ from dataclasses import dataclass
 
 import numpy as np
 import scipy.sparse as sp
-
-from forward.classify import ModeSet, classify_modes
-from forward.geometry import Field
-from forward.orthotropic import Orthotropic, bar_axes, plane_stress_xz
-from forward.solid import (
+from tonewright.forward.classify import ModeSet, classify_modes
+from tonewright.forward.geometry import Field
+from tonewright.forward.orthotropic import Orthotropic, bar_axes, plane_stress_xz
+from tonewright.forward.solid import (
     EigenSolver,
     _check_bar,
     _check_grading,

@@ -47,10 +47,9 @@ from dataclasses import dataclass
 import numpy as np
 import scipy.sparse as sp
 from scipy.sparse.linalg import LinearOperator, eigsh, splu
-
-from forward.classify import ClassifiedMode, ModeSet, classify_modes
-from forward.geometry import Field, strongest_corners
-from forward.orthotropic import Orthotropic, bar_axes, stiffness_matrix
+from tonewright.forward.classify import ClassifiedMode, ModeSet, classify_modes
+from tonewright.forward.geometry import Field, strongest_corners
+from tonewright.forward.orthotropic import Orthotropic, bar_axes, stiffness_matrix
 
 __all__ = [
     "EigenSolver",

@@ -4,16 +4,16 @@
 ``design`` runs CMA-ES then a least-squares polish and returns a ``DesignResult``.
 """
 
-from optimizer.correction import (
+from tonewright.optimizer.correction import (
     CorrectedDesign,
     CorrectionStep,
     HighFidelityModes,
     corrected_design,
 )
-from optimizer.objective import Clearance, Evaluation, Evaluator, Goal, UnwantedMode, mac
-from optimizer.search import DesignResult, SearchSettings, design
-from optimizer.sensitivity import eigenvalue_gradients, mode_densities
-from optimizer.spaces import BarUndercut, DesignField, StringDensity, TubeDesign
+from tonewright.optimizer.objective import Clearance, Evaluation, Evaluator, Goal, UnwantedMode, mac
+from tonewright.optimizer.search import DesignResult, SearchSettings, design
+from tonewright.optimizer.sensitivity import eigenvalue_gradients, mode_densities
+from tonewright.optimizer.spaces import BarUndercut, DesignField, StringDensity, TubeDesign
 
 __all__ = [
     "BarUndercut",

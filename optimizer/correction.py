@@ -31,9 +31,8 @@ from collections.abc import Callable, Sequence
 from dataclasses import dataclass, replace
 
 import numpy as np
-
-from optimizer.objective import Evaluator, Goal
-from optimizer.search import DesignResult, SearchSettings, design, polish, verdict
+from tonewright.optimizer.objective import Evaluator, Goal
+from tonewright.optimizer.search import DesignResult, SearchSettings, design, polish, verdict
 
 __all__ = ["CorrectedDesign", "CorrectionStep", "HighFidelityModes", "corrected_design"]
 

@@ -28,16 +28,15 @@ from collections.abc import Callable, Sequence
 from dataclasses import dataclass, field
 
 import numpy as np
-
-from forward.geometry import Part
-from forward.modal import (
+from tonewright.forward.geometry import Part
+from tonewright.forward.modal import (
     Discretisation,
     assemble_family,
     discretise,
     lowest_modes,
     section_coefficients,
 )
-from optimizer.sensitivity import eigenvalue_gradients
+from tonewright.optimizer.sensitivity import eigenvalue_gradients
 
 __all__ = ["Clearance", "Evaluation", "Evaluator", "Goal", "UnwantedMode", "mac"]
 

@@ -23,9 +23,8 @@ from dataclasses import dataclass
 import cma
 import numpy as np
 from scipy.optimize import least_squares
-
-from forward import solve
-from optimizer.objective import Evaluation, Evaluator
+from tonewright.forward import solve
+from tonewright.optimizer.objective import Evaluation, Evaluator
 
 __all__ = ["DesignResult", "SearchSettings", "design", "polish", "verdict"]
 

@@ -15,8 +15,7 @@ from __future__ import annotations
 from collections.abc import Mapping
 
 import numpy as np
-
-from forward.modal import FamilySystem
+from tonewright.forward.modal import FamilySystem
 
 __all__ = ["eigenvalue_gradients", "mode_densities"]
 

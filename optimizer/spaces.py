@@ -29,9 +29,8 @@ from typing import Literal
 
 import numpy as np
 from scipy.interpolate import BSpline
-
-from forward.geometry import Bar, Part, String, Tube
-from forward.modal import bar_coefficients, hole_data, tube_coefficients
+from tonewright.forward.geometry import Bar, Part, String, Tube
+from tonewright.forward.modal import bar_coefficients, hole_data, tube_coefficients
 
 __all__ = [
     "BarUndercut",

@@ -1,6 +1,6 @@
 """Library of target profiles: one TOML file per profile in this folder.
 
-This package only locates the data; ``tonewright.targets`` reads and checks it.
+This package only locates the data; ``tonewright.tuning`` reads and checks it.
 """
 
 from __future__ import annotations

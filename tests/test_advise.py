@@ -24,10 +24,10 @@ import numpy as np
 import pytest
 import tomli_w
 import typer
+from tonewright.forward import Bar, Material, PiecewiseLinear, constant, solve
+from tonewright.optimizer import Goal
 from typer.testing import CliRunner
 
-from forward import Bar, Material, PiecewiseLinear, constant, solve
-from optimizer import Goal
 from tonewright.advise import (
     CENTS_PER_LN,
     EDGE_RAMP,
@@ -129,7 +129,7 @@ def test_cuts_accumulate_and_thinnest_sees_them():
 
 
 def test_candidate_windows_keep_clear_of_holes():
-    from forward import Hole
+    from tonewright.forward import Hole
 
     holes = (Hole(0.085, 0.005), Hole(0.295, 0.005))
     centres, windows = candidate_centres(L, 0.02, True, holes=holes)

@@ -14,9 +14,9 @@ import numpy as np
 import pytest
 import soundfile as sf
 import typer
+from tonewright.forward import Bar, Material, constant, solve
 from typer.testing import CliRunner
 
-from forward import Bar, Material, constant, solve
 from tonewright.calibrate import (
     CENTS_PER_LN,
     calibrate_bar,

@@ -7,12 +7,12 @@ import numpy as np
 import pytest
 import soundfile as sf
 import typer
+from tonewright.acoustics.pitch import strike_note_hz
 from typer.testing import CliRunner
 
 from tonewright.audio import read_tap, read_wav, to_mono, write_wav
 from tonewright.commands.listen import register
 from tonewright.errors import InputError
-from tonewright.pitch import strike_note_hz
 from tonewright.synth import modal_strike
 
 app = typer.Typer()
@@ -108,7 +108,7 @@ def test_chime_reports_the_strike_note(tmp_path):
     assert result.exit_code == 0, result.stderr
     out = json.loads(result.stdout)
     assert len(out["partials"]) == 6
-    # The strike note rule lives in tonewright.pitch; here: the measured partials give the
+    # The strike note rule lives in tonewright.acoustics.pitch; here: the measured partials give the
     # same strike note as the true ones, to the 0.2 cent target.
     assert abs(cents_off(out["strike_hz"], strike_note_hz(f))) < 0.2
     # Published shape (Fletcher & Rossing 1998, ch. 19, memory): about an octave below mode 4.

@@ -6,9 +6,9 @@ from pathlib import Path
 import numpy as np
 import pytest
 import tomli_w
+from tonewright.forward import solve
 from typer.testing import CliRunner
 
-from forward import solve
 from tonewright.cli import app
 from tonewright.partfile import load_part
 

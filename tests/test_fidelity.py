@@ -13,9 +13,9 @@ from pathlib import Path
 
 import numpy as np
 import pytest
-
-from forward import Bar, constant
-from optimizer import (
+from tonewright.acoustics.pitch import critical_bandwidth_hz
+from tonewright.forward import Bar, constant
+from tonewright.optimizer import (
     BarUndercut,
     Evaluator,
     Goal,
@@ -24,10 +24,10 @@ from optimizer import (
     corrected_design,
     design,
 )
+
 from tonewright.design import build_problem, run_design
 from tonewright.materials import load_material
 from tonewright.partfile import load_part
-from tonewright.pitch import critical_bandwidth_hz
 
 EXAMPLES = Path(__file__).resolve().parents[1] / "examples"
 
@@ -91,8 +91,8 @@ def test_marimba_bar_certified_in_3d_within_3_cents():
 
 
 def _clearance():
-    from optimizer import Clearance
-    from tonewright.pitch import critical_bandwidth_hz
+    from tonewright.acoustics.pitch import critical_bandwidth_hz
+    from tonewright.optimizer import Clearance
 
     return Clearance(("torsion", "lateral"), lambda f: 0.5 * critical_bandwidth_hz(f), 3.0)
 

@@ -12,10 +12,10 @@ import numpy as np
 import pytest
 from scipy.optimize import brentq
 from threadpoolctl import threadpool_limits
+from tonewright.forward import Bar, Material, Support, constant, solve
+from tonewright.forward.modal import assemble_family, discretise, lowest_modes, section_coefficients
+from tonewright.forward.sections import cowper_rectangle
 
-from forward import Bar, Material, Support, constant, solve
-from forward.modal import assemble_family, discretise, lowest_modes, section_coefficients
-from forward.sections import cowper_rectangle
 from tonewright.partfile import load_part
 
 STEEL = Material(E=200e9, G=200e9 / 2.6, rho=7850.0, nu=0.3)

@@ -10,8 +10,7 @@ import numpy as np
 import pytest
 from scipy.integrate import solve_ivp
 from scipy.optimize import brentq
-
-from forward import Bar, Material, PiecewiseLinear, Support, constant, solve
+from tonewright.forward import Bar, Material, PiecewiseLinear, Support, constant, solve
 
 EB = "euler-bernoulli"
 # Every solve below runs to the default 0.01 cent: a relative frequency error of at most

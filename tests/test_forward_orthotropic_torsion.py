@@ -14,10 +14,10 @@ from dataclasses import replace
 
 import numpy as np
 import pytest
+from tonewright.forward import Bar, constant, solve
+from tonewright.forward.sections import rectangle_section, rectangle_torsion_constant
+from tonewright.forward.solid import SolidMesh, solid_modes
 
-from forward import Bar, constant, solve
-from forward.sections import rectangle_section, rectangle_torsion_constant
-from forward.solid import SolidMesh, solid_modes
 from tonewright.materials import load_material
 
 

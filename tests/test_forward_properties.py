@@ -16,9 +16,18 @@ import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
 from threadpoolctl import threadpool_limits
+from tonewright.forward import (
+    Bar,
+    Hole,
+    Material,
+    PiecewiseLinear,
+    Support,
+    constant,
+    families_of,
+    solve,
+)
+from tonewright.forward.modal import assemble_family, discretise, lowest_modes, section_coefficients
 
-from forward import Bar, Hole, Material, PiecewiseLinear, Support, constant, families_of, solve
-from forward.modal import assemble_family, discretise, lowest_modes, section_coefficients
 from tonewright.partfile import parse_part
 
 

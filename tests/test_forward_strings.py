@@ -3,8 +3,7 @@
 import numpy as np
 import pytest
 from scipy.optimize import brentq
-
-from forward import String, Support, constant, solve
+from tonewright.forward import String, Support, constant, solve
 
 REL_F = 6e-6  # the solves' 0.01-cent bound, 2^(0.01/1200) - 1 = 5.8e-6
 

@@ -16,9 +16,8 @@ import numpy as np
 import pytest
 from scipy.linalg import expm
 from scipy.optimize import brentq
-
-from forward import Bar, Material, Support, Tube, constant, solve
-from forward.sections import cowper_hollow_circle, cowper_rectangle
+from tonewright.forward import Bar, Material, Support, Tube, constant, solve
+from tonewright.forward.sections import cowper_hollow_circle, cowper_rectangle
 
 REL_F = 6e-6  # the solves' 0.01-cent bound, 2^(0.01/1200) - 1 = 5.8e-6
 

@@ -2,8 +2,7 @@
 
 import numpy as np
 import pytest
-
-from forward import Bar, Material, Support, Tube, constant, solve
+from tonewright.forward import Bar, Material, Support, Tube, constant, solve
 
 REL_F = 6e-6  # the solves' 0.01-cent bound, 2^(0.01/1200) - 1 = 5.8e-6
 

@@ -25,6 +25,7 @@ import numpy as np
 import pytest
 import scipy.constants
 import typer
+from tonewright.acoustics.pitch import note_to_hz, note_to_midi
 from typer.testing import CliRunner
 
 from tonewright.commands.instrument import FINGERPRINT, MANIFEST, bar_fingerprint, register
@@ -38,7 +39,6 @@ from tonewright.instrument import (
     scaled_dimension,
     speed_of_sound_m_s,
 )
-from tonewright.pitch import note_to_hz, note_to_midi
 
 REPO = Path(__file__).resolve().parents[1]
 EXAMPLE = REPO / "examples" / "workshop-marimba.toml"

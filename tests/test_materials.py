@@ -6,8 +6,8 @@ import re
 import numpy as np
 import pytest
 from pydantic import ValidationError
+from tonewright.forward.geometry import Material
 
-from forward.geometry import Material
 from tonewright.errors import InputError
 from tonewright.materials import (
     MaterialTable,

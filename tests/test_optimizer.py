@@ -11,10 +11,10 @@ from __future__ import annotations
 
 import numpy as np
 import pytest
-
-from forward import Bar, Material, String, Tube, constant, solve
-from forward.modal import assemble_family, discretise, lowest_modes, section_coefficients
-from optimizer import (
+from tonewright.acoustics.pitch import strike_note_hz
+from tonewright.forward import Bar, Material, String, Tube, constant, solve
+from tonewright.forward.modal import assemble_family, discretise, lowest_modes, section_coefficients
+from tonewright.optimizer import (
     BarUndercut,
     Clearance,
     Evaluator,
@@ -26,8 +26,7 @@ from optimizer import (
     eigenvalue_gradients,
     mac,
 )
-from optimizer.search import polish
-from tonewright.pitch import strike_note_hz
+from tonewright.optimizer.search import polish
 
 ROSEWOOD = Material(E=24e9, G=1.512e9, rho=1010.0, nu=0.476)  # library values, Pa and kg/m^3
 ALUMINIUM = Material(E=68.9e9, G=26e9, rho=2700.0, nu=0.33)  # Aluminum Association, 6061-T6
@@ -43,7 +42,7 @@ def _goals(f0: float, ratios, tols=(0.5, 1.0, 2.0)) -> list[Goal]:
 
 def _station_bar(space: BarUndercut, u: np.ndarray) -> Bar:
     """The design as written to a part file: linear between 1 mm stations."""
-    from forward import PiecewiseLinear
+    from tonewright.forward import PiecewiseLinear
 
     L = space.length(u)
     x = np.linspace(0.0, L, int(np.ceil(L / 1e-3)) + 1)
@@ -220,7 +219,7 @@ def test_unreachable_target_is_reported_with_binding_limit():
 @pytest.mark.slow
 def test_clearance_of_unwanted_modes_is_checked():
     # keep-clear band of half a critical bandwidth each side (Zwicker & Terhardt, 1980)
-    from tonewright.pitch import critical_bandwidth_hz
+    from tonewright.acoustics.pitch import critical_bandwidth_hz
 
     space = BarUndercut(_bar(ROSEWOOD, L=0.38, b=0.05), 0.022, min_thickness=0.0044, end_keep=0.02)
     clear = Clearance(("torsion", "lateral"), lambda f: 0.5 * critical_bandwidth_hz(f), 3.0)
@@ -253,7 +252,7 @@ def test_tube_tuned_to_a_strike_note():
 def test_string_tuned_to_a_non_harmonic_profile():
     # 1 : 2.1 : 3.15 is not harmonic; a uniform string gives 1:2:3 (f_n = n/(2L) sqrt(T/mu),
     # the harmonic series of the ideal string, e.g. Fletcher & Rossing ch. 2)
-    from forward import Support
+    from tonewright.forward import Support
 
     s = String(0.65, 80.0, constant(1.2e-3), supports=(Support("pin", 0.0), Support("pin", 0.65)))
     f1 = 0.5 / 0.65 * np.sqrt(80.0 / 1.2e-3)
@@ -330,7 +329,7 @@ def test_a_miss_caused_by_the_clearance_names_it():
     # a 57 x 18 x 4 mm rosewood bar at C7 reaches 1:4:10 only with a torsion mode inside the
     # third partial's critical band (found by this project's own runs: without the clearance
     # the same search meets the target); the report must say so, not "no single limit"
-    from tonewright.pitch import critical_bandwidth_hz
+    from tonewright.acoustics.pitch import critical_bandwidth_hz
 
     bar = Bar(0.057, constant(0.018), constant(0.004), ROSEWOOD)
     space = BarUndercut(bar, 0.004, min_thickness=0.0008, end_keep=0.003, control_points=6)

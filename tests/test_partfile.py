@@ -11,9 +11,9 @@ import json
 import numpy as np
 import pytest
 import tomli_w
+from tonewright.forward import Bar, String, Tube
 from typer.testing import CliRunner
 
-from forward import Bar, String, Tube
 from tonewright.cli import app
 from tonewright.errors import InputError
 from tonewright.partfile import load_part, parse_part

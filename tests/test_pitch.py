@@ -7,9 +7,7 @@ import pytest
 from hypothesis import assume, given, settings
 from hypothesis import strategies as st
 from scipy.optimize import brentq
-
-from tonewright.errors import InputError
-from tonewright.pitch import (
+from tonewright.acoustics.pitch import (
     cents,
     cents_to_ratio,
     critical_bandwidth_hz,
@@ -22,6 +20,8 @@ from tonewright.pitch import (
     strike_note_hz,
     temperature_correction_cents,
 )
+
+from tonewright.errors import InputError
 
 CI = settings(deadline=None, derandomize=True, database=None, max_examples=200)
 

@@ -23,11 +23,10 @@ from test_solid import (
     cowper_rectangle,
     timoshenko_free_free,
 )
-
-from forward.geometry import PiecewiseLinear, constant
-from forward.orthotropic import bar_axes, plane_stress_xz
-from forward.plane import PlaneMesh, assemble_plane, plane_modes, profile_grid
-from forward.solid import SolidMesh, cents, solid_modes
+from tonewright.forward.geometry import PiecewiseLinear, constant
+from tonewright.forward.orthotropic import bar_axes, plane_stress_xz
+from tonewright.forward.plane import PlaneMesh, assemble_plane, plane_modes, profile_grid
+from tonewright.forward.solid import SolidMesh, cents, solid_modes
 
 
 def _plate_bound_cents(material) -> float:

@@ -15,9 +15,8 @@ from hypothesis import given
 from hypothesis import strategies as st
 from scipy.linalg import expm
 from scipy.optimize import brentq
-
-from forward.geometry import PiecewiseLinear, constant
-from forward.orthotropic import (
+from tonewright.forward.geometry import PiecewiseLinear, constant
+from tonewright.forward.orthotropic import (
     Orthotropic,
     bar_axes,
     compliance_matrix,
@@ -25,7 +24,7 @@ from forward.orthotropic import (
     plane_stress_xz,
     stiffness_matrix,
 )
-from forward.solid import (
+from tonewright.forward.solid import (
     SolidMesh,
     _mirror_grid,
     assemble_solid,

@@ -10,9 +10,9 @@ import pytest
 import soundfile as sf
 import typer
 from scipy.integrate import quad
+from tonewright.forward import Bar, Material, String, Support, constant, solve
 from typer.testing import CliRunner
 
-from forward import Bar, Material, String, Support, constant, solve
 from tonewright.audio import read_tap
 from tonewright.commands.sound import register
 from tonewright.errors import InputError

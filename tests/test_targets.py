@@ -6,11 +6,11 @@ import tomllib
 import numpy as np
 import pytest
 from pydantic import ValidationError
+from tonewright.acoustics.pitch import note_to_hz, ratio_to_cents, strike_note_hz
+from tonewright.targets import targets_dir
 
-from targets import targets_dir
 from tonewright.errors import InputError
-from tonewright.pitch import note_to_hz, ratio_to_cents, strike_note_hz
-from tonewright.targets import (
+from tonewright.tuning import (
     TargetProfile,
     TargetSpec,
     list_targets,

@@ -14,9 +14,9 @@ from dataclasses import replace
 
 import numpy as np
 import pytest
+from tonewright.forward import PiecewiseLinear, solve
+from tonewright.optimizer import SearchSettings, design
 
-from forward import PiecewiseLinear, solve
-from optimizer import SearchSettings, design
 from tonewright.advise import advise, anchored, apply_cut
 from tonewright.design import build_problem, station_profile
 from tonewright.partfile import parse_part

@@ -96,9 +96,11 @@ import numpy as np
 from numpy.typing import ArrayLike, NDArray
 from scipy.optimize import linprog
 
-from forward.fem import build_quadrature
-from forward.geometry import Bar, Field, Hole, PiecewiseLinear, Support
-from forward.modal import (
+from tonewright.calibrate import DEFAULT_COUNTS, Calibration, calibrate_bar
+from tonewright.errors import InputError
+from tonewright.forward.fem import build_quadrature
+from tonewright.forward.geometry import Bar, Field, Hole, PiecewiseLinear, Support
+from tonewright.forward.modal import (
     Discretisation,
     assemble_family,
     bar_coefficients,
@@ -107,10 +109,8 @@ from forward.modal import (
     lowest_modes,
     section_coefficients,
 )
-from optimizer.objective import Goal
-from optimizer.sensitivity import eigenvalue_gradients
-from tonewright.calibrate import DEFAULT_COUNTS, Calibration, calibrate_bar
-from tonewright.errors import InputError
+from tonewright.optimizer.objective import Goal
+from tonewright.optimizer.sensitivity import eigenvalue_gradients
 
 __all__ = [
     "CENTS_PER_LN",

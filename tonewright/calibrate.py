@@ -74,9 +74,9 @@ import scipy.linalg
 from numpy.typing import ArrayLike, NDArray
 from scipy.optimize import least_squares, linear_sum_assignment
 
-from forward.geometry import Bar
-from forward.modal import assemble_family, discretise, section_coefficients, solve
 from tonewright.errors import InputError
+from tonewright.forward.geometry import Bar
+from tonewright.forward.modal import assemble_family, discretise, section_coefficients, solve
 
 __all__ = [
     "Calibration",

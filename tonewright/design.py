@@ -33,9 +33,12 @@ from typing import Any, Literal
 import numpy as np
 from pydantic import BaseModel, ConfigDict, Field, ValidationError, model_validator
 
-from forward import Bar, String, Tube, solve
-from forward.geometry import Part
-from optimizer import (
+from tonewright.acoustics.pitch import critical_bandwidth_hz
+from tonewright.errors import InputError, from_validation_error
+from tonewright.fidelity import Stage, check_bar, high_fidelity_function, stages_for
+from tonewright.forward import Bar, String, Tube, solve
+from tonewright.forward.geometry import Part
+from tonewright.optimizer import (
     BarUndercut,
     Clearance,
     CorrectedDesign,
@@ -48,11 +51,8 @@ from optimizer import (
     corrected_design,
     design,
 )
-from tonewright.errors import InputError, from_validation_error
-from tonewright.fidelity import Stage, check_bar, high_fidelity_function, stages_for
 from tonewright.partfile import PartFile
-from tonewright.pitch import critical_bandwidth_hz
-from tonewright.targets import ResolvedTarget, parse_target, resolve
+from tonewright.tuning import ResolvedTarget, parse_target, resolve
 from tonewright.units import Length
 
 __all__ = [
@@ -68,7 +68,7 @@ __all__ = [
     "station_profile",
 ]
 
-# strike note = geometric mean of f4/2, f5/3, f6/4 (tonewright.pitch.strike_note_hz)
+# strike note = geometric mean of f4/2, f5/3, f6/4 (tonewright.acoustics.pitch.strike_note_hz)
 STRIKE_COMPONENTS = ((4, 2.0, 1.0 / 3.0), (5, 3.0, 1.0 / 3.0), (6, 4.0, 1.0 / 3.0))
 
 

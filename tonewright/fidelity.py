@@ -17,11 +17,11 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from forward import Bar
-from forward.plane import PlaneMesh, plane_modes
-from forward.solid import SolidMesh, solid_modes
-from optimizer import Goal, HighFidelityModes
 from tonewright.errors import InputError
+from tonewright.forward import Bar
+from tonewright.forward.plane import PlaneMesh, plane_modes
+from tonewright.forward.solid import SolidMesh, solid_modes
+from tonewright.optimizer import Goal, HighFidelityModes
 
 __all__ = ["FIDELITIES", "Stage", "high_fidelity_function", "stages_for", "top_face_nodes"]
 

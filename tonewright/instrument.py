@@ -86,12 +86,12 @@ from pydantic import (
     model_validator,
 )
 
+from tonewright.acoustics.pitch import hz_to_note, note_to_midi
 from tonewright.design import DesignTable
 from tonewright.errors import InputError, from_validation_error
 from tonewright.materials import MaterialSpec, resolve_material
 from tonewright.partfile import parse_part
-from tonewright.pitch import hz_to_note, note_to_midi
-from tonewright.targets import ResolvedTarget, parse_target, resolve
+from tonewright.tuning import ResolvedTarget, parse_target, resolve
 from tonewright.units import Length, PositionLength
 
 __all__ = [

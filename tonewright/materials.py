@@ -38,11 +38,11 @@ from typing import Any, Literal
 import numpy as np
 from pydantic import BaseModel, ConfigDict, Field, ValidationError, model_validator
 
-from forward.geometry import Material
-from forward.orthotropic import Orthotropic as SolidMaterial
-from forward.orthotropic import compliance_lrt
-from forward.orthotropic import isotropic as solid_isotropic
 from tonewright.errors import InputError, from_validation_error
+from tonewright.forward.geometry import Material
+from tonewright.forward.orthotropic import Orthotropic as SolidMaterial
+from tonewright.forward.orthotropic import compliance_lrt
+from tonewright.forward.orthotropic import isotropic as solid_isotropic
 
 __all__ = [
     "MaterialFile",

@@ -29,8 +29,8 @@ from typing import Any, Literal
 import numpy as np
 from pydantic import BaseModel, ConfigDict, Field, ValidationError, field_validator, model_validator
 
-from forward.geometry import Bar, Hole, PiecewiseLinear, String, Support, Tube, constant
 from tonewright.errors import InputError, from_validation_error
+from tonewright.forward.geometry import Bar, Hole, PiecewiseLinear, String, Support, Tube, constant
 from tonewright.materials import MaterialSpec, resolve_material
 from tonewright.units import Length, PositionLength, parse_length, parse_position
 

@@ -39,9 +39,9 @@ from dataclasses import dataclass
 import numpy as np
 from numpy.typing import NDArray
 
-from forward import Bar, ModalResult, Part, String, Tube
-from forward.modal import section_coefficients
 from tonewright.errors import InputError
+from tonewright.forward import Bar, ModalResult, Part, String, Tube
+from tonewright.forward.modal import section_coefficients
 from tonewright.synth import decay_from_loss_factor
 
 __all__ = [

@@ -20,16 +20,16 @@ from rich import box
 from rich.console import Console
 from rich.table import Table
 
-from forward import Bar, Material
-from optimizer import Goal
 from tonewright.advise import CENTS_PER_LN, Advice, Step, advise
 from tonewright.audio import read_tap
 from tonewright.cli_support import atomic_write_bytes, guarded, parse_partials
 from tonewright.design import DesignTable
 from tonewright.errors import InputError, from_validation_error
+from tonewright.forward import Bar, Material
+from tonewright.optimizer import Goal
 from tonewright.partfile import PartFile, load_part
 from tonewright.tap import find_partials
-from tonewright.targets import parse_target, resolve
+from tonewright.tuning import parse_target, resolve
 
 __all__ = ["CAUTION", "advice_payload", "goals_of", "map_figure", "register"]
 

@@ -21,11 +21,11 @@ from rich import box
 from rich.console import Console
 from rich.table import Table
 
-from forward.geometry import Bar, constant
 from tonewright.audio import read_tap
 from tonewright.calibrate import CENTS_PER_LN, Calibration, calibrate_bar
 from tonewright.cli_support import atomic_write_text, guarded, parse_partials
 from tonewright.errors import InputError
+from tonewright.forward.geometry import Bar, constant
 from tonewright.materials import MaterialSpec, list_materials, load_material
 from tonewright.partfile import load_part
 from tonewright.tap import find_partials

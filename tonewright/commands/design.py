@@ -16,7 +16,6 @@ from rich.console import Console
 from rich.progress import BarColumn, Progress, TextColumn, TimeElapsedColumn
 from rich.table import Table
 
-from forward import Bar
 from tonewright.cli_support import atomic_write_bytes, atomic_write_text, guarded, prepare_out_dir
 from tonewright.design import (
     achieved,
@@ -27,6 +26,7 @@ from tonewright.design import (
     run_design,
 )
 from tonewright.errors import InputError
+from tonewright.forward import Bar
 from tonewright.partfile import load_part, parse_part
 from tonewright.plots import figure_bytes, profile_figure, spectrum_figure
 

@@ -12,10 +12,10 @@ from rich import box
 from rich.console import Console
 from rich.table import Table
 
+from tonewright.acoustics.pitch import hz_to_note, strike_note_hz
 from tonewright.audio import read_tap
 from tonewright.cli_support import guarded
 from tonewright.errors import InputError
-from tonewright.pitch import hz_to_note, strike_note_hz
 from tonewright.tap import TapResult, find_partials
 
 __all__ = ["listen", "register"]

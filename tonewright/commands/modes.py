@@ -11,11 +11,11 @@ from rich import box
 from rich.console import Console
 from rich.table import Table
 
-from forward import ModalResult, families_of, solve
+from tonewright.acoustics.pitch import hz_to_note
 from tonewright.cli_support import guarded
 from tonewright.errors import InputError
+from tonewright.forward import ModalResult, families_of, solve
 from tonewright.partfile import load_part
-from tonewright.pitch import hz_to_note
 
 __all__ = ["modes_payload", "register", "solve_part_file"]
 

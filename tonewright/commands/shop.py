@@ -10,9 +10,9 @@ from typing import Annotated, Literal
 import numpy as np
 import typer
 
-from forward import Bar, String, Tube, families_of, solve
 from tonewright.cli_support import atomic_write_text, guarded, prepare_out_dir
 from tonewright.errors import InputError
+from tonewright.forward import Bar, String, Tube, families_of, solve
 from tonewright.partfile import PartFile, load_part
 from tonewright.shop import (
     Cutter,

@@ -17,12 +17,12 @@ from rich import box
 from rich.console import Console
 from rich.table import Table
 
-from forward import Bar, String, solve
+from tonewright.acoustics.pitch import hz_to_note
 from tonewright.audio import write_wav
 from tonewright.cli_support import guarded
 from tonewright.errors import InputError
+from tonewright.forward import Bar, String, solve
 from tonewright.partfile import load_part
-from tonewright.pitch import hz_to_note
 from tonewright.preview import PreviewMode, excited_families, mallet_contact_s, preview_modes
 from tonewright.synth import half_sine_spectrum, modal_strike, t60_from_decay
 from tonewright.units import parse_position

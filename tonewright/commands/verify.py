@@ -17,15 +17,15 @@ from rich import box
 from rich.console import Console
 from rich.table import Table
 
-from forward import Bar, solve
-from forward.solid import SolidMesh, solid_modes
+from tonewright.acoustics.pitch import critical_bandwidth_hz
 from tonewright.cli_support import guarded
 from tonewright.design import DesignTable
 from tonewright.errors import InputError
 from tonewright.fidelity import COARSE_SOLID, check_bar, top_face_nodes
+from tonewright.forward import Bar, solve
+from tonewright.forward.solid import SolidMesh, solid_modes
 from tonewright.partfile import load_part
-from tonewright.pitch import critical_bandwidth_hz
-from tonewright.targets import parse_target, resolve
+from tonewright.tuning import parse_target, resolve
 
 __all__ = ["register", "verify_part"]
 

@@ -9,7 +9,7 @@ Resolution (``resolve``) turns a target into frequencies:
 
 1. nominal fundamental ``f_nom``: a note name in equal temperament referred to ``a4_hz``
    (ISO 16: A4 = 440 Hz by default), or a number in Hz, or the first of ``notes``;
-2. octave stretch (``tonewright.pitch.stretch_cents``, this project's rule):
+2. octave stretch (``tonewright.acoustics.pitch.stretch_cents``, this project's rule):
    ``s * max(0, log2(f_nom / f_from))`` cents, ``f_from`` the note ``stretch_from``;
 3. temperature: a part meant to sound at ``temperature_c`` but modelled with material data for
    ``reference_temperature_c`` is aimed ``-k (temperature_c - reference_temperature_c)`` cents
@@ -20,8 +20,8 @@ Resolution (``resolve``) turns a target into frequencies:
 
 Strike targets (profile ``kind = "strike"``, for chimes and tubular bells) resolve to a single
 partial of family ``"strike"``: the optimizer computes the strike note with
-``tonewright.pitch.strike_note_hz`` from the part's free-free bending modes 1..6 and drives it
-to that partial's frequency; no bending mode is itself a target.
+``tonewright.acoustics.pitch.strike_note_hz`` from the part's free-free bending modes 1..6 and
+drives it to that partial's frequency; no bending mode is itself a target.
 """
 
 from __future__ import annotations
@@ -39,14 +39,14 @@ from typing import Any, Literal
 import numpy as np
 from pydantic import BaseModel, ConfigDict, Field, ValidationError, model_validator
 
-from targets import targets_dir
-from tonewright.errors import InputError, from_validation_error
-from tonewright.pitch import (
+from tonewright.acoustics.pitch import (
     cents_to_ratio,
     note_to_hz,
     stretch_cents,
     temperature_correction_cents,
 )
+from tonewright.errors import InputError, from_validation_error
+from tonewright.targets import targets_dir
 
 __all__ = [
     "DEFAULT_TOLERANCE_CENTS",
@@ -329,7 +329,7 @@ class ResolvedTarget:
     """Target frequencies after pitch conventions (stretch, temperature), ready for an objective.
 
     For ``kind == "strike"`` there is one partial of family ``"strike"``: compare
-    ``tonewright.pitch.strike_note_hz(bending modes 1..6)`` with its ``f_hz``.
+    ``tonewright.acoustics.pitch.strike_note_hz(bending modes 1..6)`` with its ``f_hz``.
     """
 
     kind: ProfileKind
