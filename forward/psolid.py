@@ -1,0 +1,540 @@
+"""High-order (p-version) 3-D solid model of an undercut bar, free-free.
+
+The same problem as ``forward.solid`` (orthotropic linear elastodynamics, bar axes x length,
+y width, z thickness, flat top face z = t0, bottom face z = t0 - h(x)):
+
+    find u, omega:  int_V eps(v)^T C eps(u) dV = omega^2 int_V rho v . u dV   for all v,
+
+discretised with few, large hexahedra of high degree instead of many small ones.
+
+Discretisation
+--------------
+- Elements: ``nx`` along the length, with the profile's strongest corners among the element
+  ends (``forward.geometry.strongest_corners``); ``ny`` across *half* the width (mirror symmetry
+  about the mid-width plane, solved twice as in ``forward.solid``); ``nz`` through the thickness.
+- Shape functions: tensor products a(xi) b(eta) c(zeta) of the hierarchical integrated-Legendre
+  C0 functions of ``forward.basis`` (Szabo & Babuska (1991), *Finite Element Analysis*, ch. 3
+  and 13), degrees (px, py, pz): the full tensor-product space Q(px, py, pz). The spaces of
+  degree p - 1 are nested in those of degree p, so eigenvalues fall monotonically as the degree
+  rises (Rayleigh-Ritz), and ``psolid_convergence`` uses the difference as the error estimate.
+- Exact geometry: the element map is x = x(xi), y = y(eta), z = t0 - h(x) (1 - s(zeta)) with
+  the true thickness h(x) evaluated at the quadrature points (no interpolation of the
+  geometry). With half-lengths Lx, Ly, Ls of an element in x, y and s,
+
+      d/dx = (1/Lx) d/dxi + (h'/h) ((1 - s)/Ls) d/dzeta,
+      d/dy = (1/Ly) d/deta,
+      d/dz = (1/(h Ls)) d/dzeta,        dV = Lx Ly Ls h dxi deta dzeta.
+
+  Every factor depends on one reference coordinate only (x-factors on xi through h and h',
+  z-factors on zeta through s), so every element integral is a sum of products of 1-D
+  integrals, and the assembled matrices are sums of Kronecker products X (x) Y (x) Z of
+  assembled 1-D matrices: no 3-D quadrature at all. The x-integrals are split at every
+  breakpoint of h(x), so piecewise-linear profiles are integrated exactly.
+- Stiffness: with C4[a, i, b, j] = C[voigt(a, i), voigt(b, j)] (engineering shear strains),
+  K_ab = sum_ij C4[a, i, b, j] S_ij, S_ij = int d_i N_A d_j N_B dV.
+- Eigen-solution: unknowns ordered x-layer by x-layer, so K - sigma M is banded; a banded
+  Cholesky factor (LAPACK ``dpbtrf`` via ``scipy.linalg.cholesky_banded``) drives ARPACK's
+  shift-invert Lanczos (``scipy.sparse.linalg.eigsh``) with a small negative shift, as in
+  ``forward.solid``; three rigid-body modes per symmetry class are dropped.
+
+Modes are sampled at Gauss points (quadrature weights as lumped masses) and named by
+``forward.classify``.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, replace
+
+import numpy as np
+from scipy.linalg import cho_factor, cho_solve
+from scipy.linalg.lapack import dpotrf, dpotri
+from scipy.sparse.linalg import LinearOperator, eigsh
+from tonewright.forward.basis import c0_basis, gauss_legendre
+from tonewright.forward.classify import ModeSet, classify_modes
+from tonewright.forward.geometry import Field, strongest_corners
+from tonewright.forward.orthotropic import Orthotropic, bar_axes, stiffness_matrix
+from tonewright.forward.solid import _single_threaded_blas, cents, match_modes, negative_shift
+
+__all__ = ["PMesh", "PSolidConvergence", "psolid_convergence", "psolid_modes"]
+
+
+@dataclass(frozen=True)
+class PMesh:
+    """Elements and degrees of the p-version solid model.
+
+    ``nx`` elements along the length (the profile's corners are added as element ends), ``ny``
+    across half the width, ``nz`` through the thickness; ``px``, ``py``, ``pz`` the polynomial
+    degrees along x, y and z.
+    """
+
+    # defaults: every mode up to bending 4 of a smooth 400 x 60 x 22 mm wood arch within
+    # 0.06 cent of a degree (10, 8, 7) reference (tests/test_psolid.py)
+    nx: int = 4
+    ny: int = 1
+    nz: int = 1
+    px: int = 7
+    py: int = 6
+    pz: int = 5
+
+    def __post_init__(self) -> None:
+        for name in ("nx", "ny", "nz"):
+            value = getattr(self, name)
+            if not isinstance(value, int | np.integer) or isinstance(value, bool) or value < 1:
+                raise ValueError(f"mesh {name} = {value!r}: must be a whole number >= 1")
+        for name in ("px", "py", "pz"):
+            value = getattr(self, name)
+            if not isinstance(value, int | np.integer) or isinstance(value, bool) or value < 2:
+                raise ValueError(f"mesh {name} = {value!r}: must be a whole number >= 2")
+
+    def lowered(self) -> PMesh:
+        """The nested space one degree lower in every direction."""
+        return replace(self, px=self.px - 1, py=self.py - 1, pz=self.pz - 1)
+
+    def raised(self) -> PMesh:
+        """The space one degree higher in every direction."""
+        return replace(self, px=self.px + 1, py=self.py + 1, pz=self.pz + 1)
+
+
+# ----------------------------------------------------------------------------------------------
+# One-dimensional pieces
+@dataclass(frozen=True)
+class _Axis:
+    """Hierarchical C0 basis on a 1-D mesh: element ends, degree, quadrature samples.
+
+    Global numbering runs left to right: vertex e is function e p, the interior functions of
+    element e are e p + 1 .. e p + p - 1, so neighbouring functions have neighbouring numbers.
+    """
+
+    ends: np.ndarray  # (n + 1,)
+    p: int
+
+    @property
+    def size(self) -> int:
+        return (self.ends.size - 1) * self.p + 1
+
+    def local_to_global(self, e: int) -> np.ndarray:
+        base = e * self.p
+        return np.concatenate([[base, base + self.p], base + np.arange(1, self.p)])
+
+
+def _element_rule(a: float, b: float, cuts: np.ndarray, q: int) -> tuple[np.ndarray, np.ndarray]:
+    """Gauss points (as xi in [-1, 1]) and weights (in xi) on [a, b], split at ``cuts``."""
+    inner = cuts[(cuts > a + 1e-12 * (b - a)) & (cuts < b - 1e-12 * (b - a))]
+    edges = np.concatenate([[a], inner, [b]])
+    g, w = gauss_legendre(q)
+    lo, hi = edges[:-1, None], edges[1:, None]
+    x = 0.5 * (lo + hi) + 0.5 * (hi - lo) * g[None, :]
+    weight = (hi - lo) / (b - a) * w[None, :]  # d xi = 2 dx / (b - a); sum of weights is 2
+    return (2.0 * (x - a) / (b - a) - 1.0).ravel(), weight.ravel()
+
+
+def _slope(thickness: Field, x: np.ndarray, step: np.ndarray) -> np.ndarray:
+    """h'(x) by central differences inside a smooth piece (step well inside the piece)."""
+    return (thickness(x + step) - thickness(x - step)) / (2.0 * step)
+
+
+@dataclass(frozen=True)
+class _XSamples:
+    """Per x-element quadrature: xi, weights, x, h, h' and the half-length."""
+
+    xi: tuple[np.ndarray, ...]
+    w: tuple[np.ndarray, ...]
+    x: tuple[np.ndarray, ...]
+    h: tuple[np.ndarray, ...]
+    dh: tuple[np.ndarray, ...]
+    half: np.ndarray
+
+
+def _x_samples(axis: _Axis, thickness: Field, q: int) -> _XSamples:
+    cuts = np.asarray(thickness.breakpoints, dtype=float)
+    xis, ws, xs, hs, dhs = [], [], [], [], []
+    for a, b in zip(axis.ends[:-1], axis.ends[1:], strict=True):
+        xi, w = _element_rule(a, b, cuts, q)
+        x = a + 0.5 * (xi + 1.0) * (b - a)
+        # the step stays inside the piece: Gauss points lie at least 0.01 piece-widths inside
+        inner = np.concatenate([[a], cuts[(cuts > a) & (cuts < b)], [b]])
+        piece = np.diff(inner)[np.clip(np.searchsorted(inner, x) - 1, 0, inner.size - 2)]
+        step = 1e-4 * piece
+        xis.append(xi)
+        ws.append(w)
+        xs.append(x)
+        hs.append(np.asarray(thickness(x), dtype=float))
+        dhs.append(_slope(thickness, x, step))
+    half = 0.5 * np.diff(axis.ends)
+    return _XSamples(tuple(xis), tuple(ws), tuple(xs), tuple(hs), tuple(dhs), half)
+
+
+def _assemble_1d(axis: _Axis, local: list[np.ndarray]) -> np.ndarray:
+    """Dense global 1-D matrix from per-element local matrices (p + 1, p + 1)."""
+    A = np.zeros((axis.size, axis.size))
+    for e, Ae in enumerate(local):
+        idx = axis.local_to_global(e)
+        A[np.ix_(idx, idx)] += Ae
+    return A
+
+
+# The physical derivatives as sums of separable terms (see the module docstring). A term is
+# (x-factor, d/dxi order, y-factor, d/deta order, z-factor, d/dzeta order); factor names:
+#   x: "1", "1/Lx", "h'/h", "1/h"      y: "1", "1/Ly"      z: "1", "(1-s)/Ls", "1/Ls"
+_DERIVATIVE_TERMS: tuple[tuple[tuple[str, int, str, int, str, int], ...], ...] = (
+    (("1/Lx", 1, "1", 0, "1", 0), ("h'/h", 0, "1", 0, "(1-s)/Ls", 1)),  # d/dx
+    (("1", 0, "1/Ly", 1, "1", 0),),  # d/dy
+    (("1/h", 0, "1", 0, "1/Ls", 1),),  # d/dz
+)
+
+
+def _x_factor(name: str, h: np.ndarray, dh: np.ndarray, half: float) -> np.ndarray:
+    if name == "1":
+        return np.ones_like(h)
+    if name == "1/Lx":
+        return np.full_like(h, 1.0 / half)
+    if name == "h'/h":
+        return dh / h
+    return 1.0 / h  # "1/h"
+
+
+def _x_matrix(axis: _Axis, xs: _XSamples, pair: tuple[tuple[str, int], tuple[str, int]]):
+    """Global X for a pair of x-terms, measure Lx h dxi included."""
+    (fa, da), (fb, db) = pair
+    local = []
+    for e in range(axis.ends.size - 1):
+        B = c0_basis(axis.p, xs.xi[e], 1)
+        h, dh, L = xs.h[e], xs.dh[e], xs.half[e]
+        weight = _x_factor(fa, h, dh, L) * _x_factor(fb, h, dh, L) * L * h * xs.w[e]
+        local.append(B[da].T @ (weight[:, None] * B[db]))
+    return _assemble_1d(axis, local)
+
+
+def _y_matrix(axis: _Axis, pair: tuple[tuple[str, int], tuple[str, int]]) -> np.ndarray:
+    (fa, da), (fb, db) = pair
+    g, w = gauss_legendre(axis.p + 1)
+    B = c0_basis(axis.p, g, 1)
+    local = []
+    for L in 0.5 * np.diff(axis.ends):
+        scale = L * (1.0 / L if fa == "1/Ly" else 1.0) * (1.0 / L if fb == "1/Ly" else 1.0)
+        local.append(scale * (B[da].T @ (w[:, None] * B[db])))
+    return _assemble_1d(axis, local)
+
+
+def _z_matrix(axis: _Axis, pair: tuple[tuple[str, int], tuple[str, int]]) -> np.ndarray:
+    (fa, da), (fb, db) = pair
+    g, w = gauss_legendre(axis.p + 2)  # integrand degree <= 2 p + 2
+    B = c0_basis(axis.p, g, 1)
+    local = []
+    for a, b in zip(axis.ends[:-1], axis.ends[1:], strict=True):
+        L = 0.5 * (b - a)
+        s = a + (g + 1.0) * L
+
+        def factor(name: str, s: np.ndarray = s, L: float = L) -> np.ndarray:
+            if name == "1":
+                return np.ones_like(s)
+            if name == "1/Ls":
+                return np.full_like(s, 1.0 / L)
+            return (1.0 - s) / L  # "(1-s)/Ls"
+
+        weight = factor(fa) * factor(fb) * L * w
+        local.append(B[da].T @ (weight[:, None] * B[db]))
+    return _assemble_1d(axis, local)
+
+
+# ----------------------------------------------------------------------------------------------
+# Assembly as sums of Kronecker products
+_VOIGT = np.array([[0, 5, 4], [5, 1, 3], [4, 3, 2]])  # voigt(a, i) for the strain d_i u_a
+
+
+@dataclass(frozen=True)
+class _KroneckerPencil:
+    """K = sum_t X[t] (x) S[t] and M = M_x (x) M_s: 1-D matrices along x (Nx, Nx) times
+    cross-section matrices (m, m), unknowns ordered (x function, cross-section unknown)."""
+
+    X: np.ndarray  # (T, Nx, Nx)
+    S: np.ndarray  # (T, m, m)
+    M_x: np.ndarray  # (Nx, Nx)
+    M_s: np.ndarray  # (m, m)
+
+    def restricted(self, keep: np.ndarray) -> _KroneckerPencil:
+        """The pencil with only the cross-section unknowns ``keep`` (supports)."""
+        return _KroneckerPencil(
+            self.X, self.S[:, keep][:, :, keep], self.M_x, self.M_s[np.ix_(keep, keep)]
+        )
+
+    def shifted(self, sigma: float) -> tuple[np.ndarray, np.ndarray]:
+        """Terms of K - sigma M."""
+        return (
+            np.concatenate([self.X, -sigma * self.M_x[None]]),
+            np.concatenate([self.S, self.M_s[None]]),
+        )
+
+
+def _assemble(
+    x: _Axis, y: _Axis, z: _Axis, xs: _XSamples, C: np.ndarray, rho: float
+) -> _KroneckerPencil:
+    G = C[_VOIGT[:, :, None, None], _VOIGT[None, None, :, :]]  # C4[a, i, b, j]
+    X_terms, S_terms = [], []
+    for i, terms_i in enumerate(_DERIVATIVE_TERMS):
+        for j, terms_j in enumerate(_DERIVATIVE_TERMS):
+            G_ij = G[:, i, :, j]  # (a, b)
+            if not np.any(G_ij):
+                continue
+            for fxa, dxa, fya, dya, fza, dza in terms_i:
+                for fxb, dxb, fyb, dyb, fzb, dzb in terms_j:
+                    X_terms.append(_x_matrix(x, xs, ((fxa, dxa), (fxb, dxb))))
+                    Ym = _y_matrix(y, ((fya, dya), (fyb, dyb)))
+                    Zm = _z_matrix(z, ((fza, dza), (fzb, dzb)))
+                    S_terms.append(np.kron(np.kron(Ym, Zm), G_ij))
+    M_x = _x_matrix(x, xs, (("1", 0), ("1", 0)))
+    Ym = _y_matrix(y, (("1", 0), ("1", 0)))
+    Zm = _z_matrix(z, (("1", 0), ("1", 0)))
+    M_s = rho * np.kron(np.kron(Ym, Zm), np.eye(3))
+    return _KroneckerPencil(np.stack(X_terms), np.stack(S_terms), M_x, M_s)
+
+
+def _kron_block(X: np.ndarray, S: np.ndarray, rows: np.ndarray, cols: np.ndarray) -> np.ndarray:
+    """Dense block sum_t X[t][rows, cols] (x) S[t]."""
+    Xb = X[:, rows][:, :, cols]  # (T, r, c)
+    m = S.shape[1]
+    B = np.tensordot(Xb, S, axes=(0, 0))  # (r, c, m, m)
+    return B.transpose(0, 2, 1, 3).reshape(rows.size * m, cols.size * m)
+
+
+class _CondensedCholesky:
+    """Direct solver for sum_t X[t] (x) S[t] (symmetric positive definite) by condensation.
+
+    The interior functions of an x-element couple only to each other and to the element's two
+    vertex functions, so eliminating them element by element (dense Cholesky of each interior
+    block) leaves the Schur complement on the vertex layers, a small block-tridiagonal matrix
+    factored densely. This is exact Gaussian elimination in a nested-dissection order; it costs
+    about n_e ((p - 1) m)^3 / 3 against n (p m)^2 for a banded factor.
+    """
+
+    def __init__(self, X: np.ndarray, S: np.ndarray, p: int) -> None:
+        m = S.shape[1]
+        self.p, self.m = p, m
+        self.n_el = (X.shape[1] - 1) // p
+        vertices = np.arange(self.n_el + 1) * p
+        schur = _kron_block(X, S, vertices, vertices)
+        inverses, solved = [], []
+        for e in range(self.n_el):
+            inner = e * p + np.arange(1, p)
+            A_ii = _kron_block(X, S, inner, inner)
+            A_iv = _kron_block(X, S, inner, vertices[e : e + 2])
+            # explicit inverse from the Cholesky factor: each solve is then one matrix product
+            # over all elements at once, memory-bound and several times faster than two
+            # triangular solves per element
+            L, info = dpotrf(A_ii, lower=1, clean=1)
+            if info:
+                raise np.linalg.LinAlgError("shifted stiffness is not positive definite")
+            inv, info = dpotri(L, lower=1)
+            inv = np.tril(inv) + np.tril(inv, -1).T
+            W = inv @ A_iv  # A_ii^-1 A_iv
+            v = slice(e * m, (e + 2) * m)
+            schur[v, v] -= A_iv.T @ W
+            inverses.append(inv)
+            solved.append(W)
+        self.inverses = np.stack(inverses)  # (n_el, (p-1) m, (p-1) m)
+        self.solved = np.stack(solved)  # (n_el, (p-1) m, 2 m)
+        self.schur = cho_factor(schur, lower=True, check_finite=False)
+
+    def solve(self, b: np.ndarray) -> np.ndarray:
+        p, m, n_el = self.p, self.m, self.n_el
+        B = b.reshape(-1, m)
+        inner = B[:-1].reshape(n_el, p, m)[:, 1:].reshape(n_el, -1)  # (n_el, (p-1) m)
+        y = np.matmul(self.inverses, inner[:, :, None])[:, :, 0]
+        # right-hand side of the vertex layers: b_v - A_vi A_ii^-1 b_i, with A_vi A_ii^-1 = W^T
+        rhs_v = B[::p].ravel().copy()
+        corr = np.matmul(inner[:, None, :], self.solved)[:, 0]  # (n_el, 2 m)
+        for e in range(n_el):
+            rhs_v[e * m : (e + 2) * m] -= corr[e]
+        x_v = cho_solve(self.schur, rhs_v, check_finite=False).reshape(-1, m)
+        pairs = np.concatenate([x_v[:-1], x_v[1:]], axis=1)  # (n_el, 2 m)
+        x_i = y - np.matmul(self.solved, pairs[:, :, None])[:, :, 0]
+        x = np.empty((n_el, p, m))
+        x[:, 0] = x_v[:-1]
+        x[:, 1:] = x_i.reshape(n_el, p - 1, m)
+        return np.concatenate([x.reshape(-1, m), x_v[-1:]]).ravel()
+
+
+def _free_modes(
+    pencil: _KroneckerPencil, p: int, count: int, sigma: float
+) -> tuple[np.ndarray, np.ndarray, str]:
+    """Lowest ``count`` flexible modes of a free problem with three rigid-body modes."""
+    n_x, m = pencil.M_x.shape[0], pencil.M_s.shape[0]
+    n = n_x * m
+    with _single_threaded_blas():
+        solver = _CondensedCholesky(*pencil.shifted(sigma), p)
+    OPinv = LinearOperator((n, n), matvec=solver.solve, dtype=float)
+    M_x, M_s = pencil.M_x, pencil.M_s
+    M_op = LinearOperator(
+        (n, n), matvec=lambda v: (M_x @ v.reshape(n_x, m) @ M_s.T).ravel(), dtype=float
+    )
+    K_op = LinearOperator((n, n), matvec=lambda v: v, dtype=float)  # unused in shift-invert
+    k = min(count + 3, n - 2)
+    with _single_threaded_blas():
+        lam, vec = eigsh(K_op, k=k, M=M_op, sigma=sigma, which="LM", OPinv=OPinv)
+    order = np.argsort(lam)
+    lam, vec = lam[order], vec[:, order]
+    message = "converged"
+    if lam[2] > 1e-6 * lam[3]:
+        message = "rigid-body modes not separated from the flexible ones; check the model"
+    f_hz = np.sqrt(np.clip(lam[3:], 0.0, None)) / (2.0 * np.pi)
+    return f_hz, vec[:, 3:], message
+
+
+# ----------------------------------------------------------------------------------------------
+# Sampling for classification
+def _sample_matrix(axis: _Axis, q: int) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """Values of every global function at q Gauss points per element: (points, weights in the
+    physical coordinate, E (points, size))."""
+    g, w = gauss_legendre(q)
+    B = c0_basis(axis.p, g, 0)[0]
+    n_el = axis.ends.size - 1
+    E = np.zeros((n_el * q, axis.size))
+    pts, wts = [], []
+    for e, (a, b) in enumerate(zip(axis.ends[:-1], axis.ends[1:], strict=True)):
+        E[e * q : (e + 1) * q, axis.local_to_global(e)] = B
+        pts.append(a + 0.5 * (g + 1.0) * (b - a))
+        wts.append(0.5 * (b - a) * w)
+    return np.concatenate(pts), np.concatenate(wts), E
+
+
+_SYMMETRY = (
+    ("symmetric", (1,), np.array([1.0, -1.0, 1.0])),
+    ("antisymmetric", (0, 2), np.array([-1.0, 1.0, -1.0])),
+)
+
+
+def _check(length: float, width: float, blank_thickness: float, h: np.ndarray) -> None:
+    for name, value in (("length", length), ("width", width), ("blank_thickness", blank_thickness)):
+        if not (np.isfinite(value) and value > 0):
+            raise ValueError(f"{name} = {value!r} m: must be a positive number")
+    if not np.all(np.isfinite(h)) or h.min() <= 0:
+        raise ValueError(f"thickness = {np.nanmin(h)!r} m somewhere along the bar: must be > 0")
+    if h.max() > blank_thickness * (1.0 + 1e-9):
+        raise ValueError(f"thickness = {h.max()!r} m exceeds blank_thickness = {blank_thickness!r}")
+
+
+def psolid_modes(
+    length: float,
+    width: float,
+    blank_thickness: float,
+    thickness: Field,
+    material: Orthotropic,
+    count: int = 12,
+    mesh: PMesh | None = None,
+    element_ends: np.ndarray | None = None,
+) -> ModeSet:
+    """Lowest ``count`` free-free flexible modes of an undercut bar, p-version hexahedra.
+
+    ``thickness`` is the local thickness h(x) (m) below the flat top face at z =
+    ``blank_thickness``; ``count`` modes are computed in each symmetry class and the lowest
+    ``count`` of both returned, classified by family. ``element_ends`` (m) adds element ends
+    where the profile is less smooth than its corners show (e.g. where a cut's curvature
+    jumps): p-convergence is exponential only where the solution is smooth inside elements.
+    """
+    if not isinstance(material, Orthotropic):
+        raise ValueError(f"material = {type(material).__name__}: must be an Orthotropic")
+    if not isinstance(count, int | np.integer) or count < 1:
+        raise ValueError(f"count = {count!r}: must be a whole number >= 1")
+    mesh = mesh or PMesh()
+    _check(length, width, blank_thickness, np.asarray(thickness(np.linspace(0, length, 201))))
+    corners = strongest_corners(
+        (thickness,), np.asarray(thickness.breakpoints, dtype=float), length, 16
+    )
+    uniform = np.linspace(0.0, length, mesh.nx + 1)
+    extra = np.asarray(element_ends if element_ends is not None else [], dtype=float)
+    inner = np.concatenate([corners, extra])
+    ends = np.unique(np.concatenate([uniform, inner[(inner > 0) & (inner < length)]]))
+    ends = ends[np.concatenate([[True], np.diff(ends) > 1e-6 * length])]
+    ends[-1] = length
+    x_axis = _Axis(ends, mesh.px)
+    y_axis = _Axis(np.linspace(0.0, 0.5 * width, mesh.ny + 1), mesh.py)
+    z_axis = _Axis(np.linspace(0.0, 1.0, mesh.nz + 1), mesh.pz)
+    xs = _x_samples(x_axis, thickness, mesh.px + 3)
+    _check(length, width, blank_thickness, np.concatenate(xs.h))
+    pencil = _assemble(x_axis, y_axis, z_axis, xs, stiffness_matrix(material), material.rho)
+    h_min = float(min(h.min() for h in xs.h))
+    sigma = negative_shift(length, h_min, bar_axes(material).E_x, material.rho)
+
+    Ny, Nz = y_axis.size, z_axis.size
+    layer = np.arange(Ny * Nz * 3).reshape(Ny, Nz, 3)
+    # samples for classification: Gauss points, quadrature weights as lumped masses
+    qx, qy, qz = mesh.px + 1, mesh.py + 1, mesh.pz + 1
+    sx, wx, Ex = _sample_matrix(x_axis, qx)
+    sy, wy, Ey = _sample_matrix(y_axis, qy)
+    ss, ws, Ez = _sample_matrix(z_axis, qz)
+    h_s = np.asarray(thickness(sx), dtype=float)
+    coords = np.empty((sx.size, sy.size, ss.size, 3))
+    coords[..., 0] = sx[:, None, None]
+    coords[..., 1] = sy[None, :, None]
+    coords[..., 2] = (blank_thickness - h_s[:, None] * (1.0 - ss[None, :]))[:, None, :]
+    masses = material.rho * (wx * h_s)[:, None, None] * wy[None, :, None] * ws[None, None, :]
+
+    f_parts, shape_parts, messages, n_dof = [], [], [], 0
+    for _, fixed, parity in _SYMMETRY:
+        held = np.zeros((Ny, Nz, 3), dtype=bool)
+        held[-1, :, list(fixed)] = True  # the mid-width plane is the last y vertex
+        keep = layer[~held]
+        n_dof += x_axis.size * keep.size
+        f_hz, vec, message = _free_modes(pencil.restricted(keep), mesh.px, count, sigma)
+        coef = np.zeros((f_hz.size, x_axis.size, Ny * Nz * 3))
+        coef[:, :, keep] = vec.T.reshape(f_hz.size, x_axis.size, keep.size)
+        coef = coef.reshape(f_hz.size, x_axis.size, Ny, Nz, 3) / np.sqrt(2.0)
+        half = np.einsum("ai,bj,ck,mijkd->mabcd", Ex, Ey, Ez, coef, optimize=True)
+        mirrored = half[:, :, ::-1] * parity
+        shape_parts.append(np.concatenate([half, mirrored], axis=2))
+        f_parts.append(f_hz)
+        messages.append(message)
+    f_all = np.concatenate(f_parts)
+    order = np.argsort(f_all, kind="stable")[:count]
+    shapes = np.concatenate(shape_parts)[order]
+    mirror = coords[:, ::-1].copy()
+    mirror[..., 1] = width - mirror[..., 1]
+    coords_full = np.concatenate([coords, mirror], axis=1)
+    masses_full = np.concatenate([masses, masses[:, ::-1]], axis=1)
+    modes = classify_modes(f_all[order], coords_full, shapes, masses_full)
+    problems = [m for m in messages if m != "converged"]
+    return ModeSet(
+        f_hz=f_all[order],
+        modes=modes,
+        mesh=mesh,
+        n_dof=n_dof,
+        coords=coords_full,
+        shapes=shapes,
+        status=1 if problems else 0,
+        message="; ".join(problems) or "converged",
+    )
+
+
+@dataclass(frozen=True)
+class PSolidConvergence:
+    """A result and the same model one degree lower in every direction (a nested space);
+    ``error_cents`` per mode of ``result`` = cents(result, lower), the error estimate of the
+    lower space and an upper bound of the result's own error for converging modes (NaN where
+    the lower run has no mode of that family and order)."""
+
+    result: ModeSet
+    lower: ModeSet
+    error_cents: np.ndarray
+
+    @property
+    def max_error_cents(self) -> float:
+        return float(np.nanmax(np.abs(self.error_cents)))
+
+
+def psolid_convergence(
+    length: float,
+    width: float,
+    blank_thickness: float,
+    thickness: Field,
+    material: Orthotropic,
+    count: int = 12,
+    mesh: PMesh | None = None,
+    element_ends: np.ndarray | None = None,
+) -> PSolidConvergence:
+    """``psolid_modes`` on ``mesh`` and on ``mesh.lowered()``; the change per mode in cents."""
+    mesh = mesh or PMesh()
+    bar = (length, width, blank_thickness, thickness, material)
+    result = psolid_modes(*bar, count, mesh, element_ends)
+    lower = psolid_modes(*bar, count + 4, mesh.lowered(), element_ends)
+    f_low = match_modes(result.modes, lower.modes)
+    return PSolidConvergence(result, lower, cents(f_low, result.f_hz))

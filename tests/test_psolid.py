@@ -1,0 +1,274 @@
+"""Tests of the p-version 3-D solid model (``tonewright.forward.psolid``).
+
+Evidence tiers: an independent general FE library (scikit-fem, triquadratic Lagrange
+hexahedra) on the same discrete space; the 27-node h-version model of this project extrapolated
+to zero mesh size; published closed forms (Timoshenko beam, Saint-Venant torsion, Rayleigh's
+rod); the convergence rate in the degree (exponential for a smooth profile); structural
+invariants (nested spaces never raise a frequency, square section symmetry).
+"""
+
+from __future__ import annotations
+
+import numpy as np
+import pytest
+import scipy.linalg as sla
+import skfem
+from skfem.helpers import dot, sym_grad
+from test_solid import (
+    AL_E,
+    AL_NU,
+    AL_RHO,
+    ALUMINIUM,
+    EB_FREE,
+    UNDERCUT,
+    WOOD,
+    cowper_rectangle,
+    timoshenko_free_free,
+)
+from tonewright.forward.geometry import constant
+from tonewright.forward.orthotropic import isotropic, stiffness_matrix
+from tonewright.forward.psolid import PMesh, psolid_convergence, psolid_modes
+from tonewright.forward.solid import SolidMesh, cents, match_modes, solid_modes
+
+L, B, T0 = 0.4, 0.055, 0.022
+
+
+class SineArch:
+    """A smooth undercut: h = t0 - d sin^2(pi (x - a) / (b - a)) on [a, b], t0 outside.
+
+    Its curvature jumps at a and b, which are its breakpoints (element ends)."""
+
+    def __init__(self, t0: float, depth: float, a: float, b: float) -> None:
+        self.t0, self.depth, self.a, self.b = t0, depth, a, b
+
+    def __call__(self, x: np.ndarray) -> np.ndarray:
+        x = np.asarray(x, dtype=float)
+        inside = (x > self.a) & (x < self.b)
+        s = np.sin(np.pi * (x - self.a) / (self.b - self.a)) ** 2
+        return self.t0 - self.depth * np.where(inside, s, 0.0)
+
+    @property
+    def breakpoints(self) -> np.ndarray:
+        return np.array([0.0, self.a, self.b, L])
+
+
+ARCH = SineArch(0.022, 0.014, 0.06, 0.34)
+
+
+# ---------------------------------------------------------------------------------------------
+# Independent library on the same discrete space
+def _skfem_spectrum(x_ends, width, t0, thickness, C, rho, k):
+    """Lowest k frequencies of the full-width bar in scikit-fem, Q2 Lagrange hexahedra on the
+    trilinear map x, y, z = t0 - h(x) (1 - s), one element per half width and one through the
+    thickness: the same space as degree 2 of the hierarchical model."""
+    mesh = skfem.MeshHex.init_tensor(np.asarray(x_ends), np.array([0, 0.5, 1]) * width, [0, 1])
+    p = mesh.p.copy()
+    p[2] = t0 - thickness(p[0]) * (1.0 - p[2])
+    basis = skfem.Basis(
+        skfem.MeshHex(p, mesh.t), skfem.ElementVector(skfem.ElementHex2()), intorder=8
+    )
+
+    def voigt(e):
+        return [e[0, 0], e[1, 1], e[2, 2], 2 * e[1, 2], 2 * e[0, 2], 2 * e[0, 1]]
+
+    @skfem.BilinearForm
+    def stiffness(u, v, w):
+        eu, ev = voigt(sym_grad(u)), voigt(sym_grad(v))
+        return sum(C[i, j] * ev[i] * eu[j] for i in range(6) for j in range(6) if C[i, j])
+
+    @skfem.BilinearForm
+    def mass(u, v, w):
+        return rho * dot(u, v)
+
+    K, M = stiffness.assemble(basis).toarray(), mass.assemble(basis).toarray()
+    lam = sla.eigh(K, M, eigvals_only=True, subset_by_index=[0, k + 5])
+    return np.sqrt(np.clip(lam[6:], 0, None)) / (2 * np.pi)
+
+
+def test_degree_two_equals_scikit_fem_triquadratic_uniform_bar():
+    # h constant: every integrand is a polynomial that both codes integrate exactly, so the
+    # same space must give the same eigenvalues to round-off
+    mesh = PMesh(nx=5, ny=1, nz=1, px=2, py=2, pz=2)
+    own = psolid_modes(L, B, T0, constant(T0), WOOD, 10, mesh)
+    ref = _skfem_spectrum(
+        np.linspace(0, L, 6), B, T0, constant(T0), stiffness_matrix(WOOD), WOOD.rho, 10
+    )
+    np.testing.assert_allclose(own.f_hz, ref, rtol=1e-9)
+
+
+def test_degree_two_equals_scikit_fem_triquadratic_undercut_bar():
+    # the element ends hold every corner of the profile, so each element is a trilinear map:
+    # the spaces agree; both codes integrate the rational terms (h'/h) by Gauss rules, so they
+    # agree to the quadrature error, measured 1e-9 relative (tolerance 1e-7)
+    mesh = PMesh(nx=10, ny=1, nz=1, px=2, py=2, pz=2)  # ends every 40 mm hold 120-280 mm
+    own = psolid_modes(L, B, T0, UNDERCUT, WOOD, 10, mesh)
+    ref = _skfem_spectrum(
+        np.linspace(0, L, 11), B, T0, UNDERCUT, stiffness_matrix(WOOD), WOOD.rho, 10
+    )
+    np.testing.assert_allclose(own.f_hz, ref, rtol=1e-7)
+
+
+# ---------------------------------------------------------------------------------------------
+# Convergence
+@pytest.mark.slow
+def test_exponential_convergence_in_the_degree_on_a_smooth_arch():
+    # Szabo & Babuska (1991), Finite Element Analysis, ch. 13: for solutions analytic inside
+    # each element the p-version error decays exponentially in the degree, |e| ~ C q^p; an
+    # algebraic rate would show as a falling slope of log|e| against p
+    ref = psolid_modes(L, 0.06, 0.022, ARCH, WOOD, 8, PMesh(nx=4, px=10, py=8, pz=7))
+    errors = []
+    degrees = (3, 4, 5, 6)
+    for p in degrees:
+        r = psolid_modes(L, 0.06, 0.022, ARCH, WOOD, 8, PMesh(nx=4, px=p + 2, py=p, pz=p))
+        errors.append(np.abs(cents(r.f_hz[:6], match_modes(r.modes[:6], ref.modes))))
+    errors = np.array(errors)  # (degree, mode)
+    worst = errors.max(axis=1)
+    slope, _ = np.polyfit(degrees, np.log(worst), 1)
+    # measured: worst errors 4.9, 1.5, 0.29, 0.067 cent, a factor 4.3 per degree
+    assert slope < np.log(1 / 3)
+    steps = worst[1:] / worst[:-1]
+    assert np.all(steps < 0.45)  # no step slows to an algebraic rate
+    assert worst[-1] < 0.1
+
+
+def test_nested_degrees_never_raise_a_frequency():
+    # the space of degree p - 1 is a subspace of that of degree p (hierarchical functions), so
+    # by the min-max principle no Rayleigh-Ritz eigenvalue rises (Strang & Fix 1973, ch. 6)
+    low = psolid_modes(L, B, T0, UNDERCUT, WOOD, 8, PMesh(nx=4, px=4, py=3, pz=3))
+    high = psolid_modes(L, B, T0, UNDERCUT, WOOD, 8, PMesh(nx=4, px=5, py=4, pz=4))
+    assert np.all(high.f_hz <= low.f_hz * (1 + 1e-10))
+
+
+def test_error_estimate_bounds_the_true_error_on_a_smooth_arch():
+    conv = psolid_convergence(L, 0.06, 0.022, ARCH, WOOD, 8)
+    ref = psolid_modes(L, 0.06, 0.022, ARCH, WOOD, 8, PMesh(nx=4, px=10, py=8, pz=7))
+    true = cents(conv.result.f_hz, match_modes(conv.result.modes, ref.modes))
+    # default mesh: every wanted mode within 0.1 cent, and the nested estimate is larger than
+    # the true error (it is the lower space's error)
+    assert np.all(np.abs(true) < 0.1)
+    assert np.all(np.abs(conv.error_cents) >= np.abs(true) - 1e-3)
+    assert conv.max_error_cents < 0.5
+
+
+# ---------------------------------------------------------------------------------------------
+# Closed forms
+@pytest.fixture(scope="module")
+def slender_aluminium():
+    """A 400 x 20 x 20 mm aluminium bar (h/L = 0.05)."""
+    return psolid_modes(0.4, 0.02, 0.02, constant(0.02), ALUMINIUM, 10, PMesh(nx=4, px=8))
+
+
+def test_uniform_bar_bending_against_timoshenko(slender_aluminium):
+    b = h = 0.02
+    A, Iy = b * h, b * h**3 / 12
+    G = AL_E / (2 * (1 + AL_NU))
+    f_eb = EB_FREE[:4] ** 2 / (2 * np.pi * 0.4**2) * np.sqrt(AL_E * Iy / (AL_RHO * A))
+    f_cowper = timoshenko_free_free(
+        0.4, AL_E * Iy, cowper_rectangle(AL_NU) * G * A, AL_RHO * A, AL_RHO * Iy, 4
+    )
+    f_56 = timoshenko_free_free(0.4, AL_E * Iy, 5 / 6 * G * A, AL_RHO * A, AL_RHO * Iy, 4)
+    f = slender_aluminium.family_hz("bending")[:4]
+    # Euler-Bernoulli (Thomson, Theory of Vibration with Applications, App. D) lies above the
+    # solid, and Timoshenko's beam (Cowper's kappa, Cowper 1966, J. Appl. Mech. 33, 335-340)
+    # within twice the change that swapping kappa for 5/6 makes (the beam theory's own
+    # uncertainty); no mesh allowance is needed: the p-model is converged (measured +0.26,
+    # +0.97, +2.05 cents, where the 27-node model needs 0.6 cent of mesh allowance)
+    assert np.all(cents(f_eb, f) > 0)
+    tol = 2 * np.abs(cents(f_56, f_cowper))[:3]
+    assert np.all(np.abs(cents(f, f_cowper))[:3] < tol)
+
+
+def test_uniform_bar_torsion_against_saint_venant():
+    b, h = 0.04, 0.02  # b/h = 2
+    r = psolid_modes(0.4, b, h, constant(h), ALUMINIUM, 12, PMesh(nx=4, px=6, py=7, pz=6))
+    # J = k b h^3, Timoshenko & Goodier (1970), Theory of Elasticity, sec. 109 (series for the
+    # rectangle); k = 0.229 at b/h = 2 in their table
+    n = np.arange(1, 400, 2)
+    k = (1 - 192 / np.pi**5 * (h / b) * np.sum(np.tanh(n * np.pi * b / (2 * h)) / n**5)) / 3
+    G = AL_E / (2 * (1 + AL_NU))
+    Ip = b * h * (b * b + h * h) / 12
+    f1 = 1 / (2 * 0.4) * np.sqrt(G * k * b * h**3 / (AL_RHO * Ip))
+    # the solid adds the warping stiffness Saint-Venant omits (under 0.2 % at L/b = 10); the
+    # 27-node model measured +1.2 cents on its finest mesh
+    d = cents(r.family_hz("torsion")[0], f1)
+    assert 0.0 < d < 2.0
+
+
+def test_uniform_bar_axial_against_rod_with_lateral_inertia(slender_aluminium):
+    # Rayleigh, The Theory of Sound, vol. 1, sec. 157 (from memory): f ~ f_n (1 - (n pi nu
+    # r_p / L)^2 / 2), r_p^2 = I_p / A, good to O((r_p / L)^4)
+    f0 = 1 / (2 * 0.4) * np.sqrt(AL_E / AL_RHO)
+    rp2 = 2 * 0.02**2 / 12
+    f_rayleigh = f0 * (1 - 0.5 * (np.pi * AL_NU) ** 2 * rp2 / 0.4**2)
+    fa = slender_aluminium.family_hz("axial")[0]
+    assert abs(cents(fa, f_rayleigh)) < 0.05
+
+
+def test_square_section_lateral_equals_vertical():
+    # an isotropic square bar looks the same turned by 90 degrees; with two elements through
+    # the thickness (nz = 2) and one per half width the spaces across y and z are the same, so
+    # lateral mode n equals vertical mode n to round-off
+    r = psolid_modes(
+        0.4, 0.02, 0.02, constant(0.02), ALUMINIUM, 10, PMesh(nx=4, ny=1, nz=2, px=8, py=4, pz=4)
+    )
+    bend, lat = r.family_hz("bending")[:3], r.family_hz("lateral")[:3]
+    np.testing.assert_allclose(lat, bend, rtol=1e-8)
+
+
+def test_classification_of_a_uniform_bar(slender_aluminium):
+    r = slender_aluminium
+    for family in ("bending", "lateral", "torsion", "axial"):
+        modes = [m for m in r.modes if m.family == family]
+        assert [m.order for m in modes] == list(range(1, len(modes) + 1))
+        for m in modes:
+            extra = 1 if family in ("bending", "lateral") else 0
+            assert m.nodes == m.order + extra
+            assert m.share > 0.9
+    assert {m.family for m in r.modes} >= {"bending", "lateral", "torsion", "axial"}
+
+
+# ---------------------------------------------------------------------------------------------
+# Against the 27-node model of this project
+@pytest.mark.slow
+def test_agrees_with_the_27_node_model_extrapolated_on_a_uniform_wood_bar():
+    # the 27-node model converges as O(h^4) on a uniform bar (no corners); Richardson's
+    # extrapolation of two of its meshes removes the leading error term
+    coarse = solid_modes(L, B, T0, constant(T0), WOOD, 8, mesh=SolidMesh(24, 4, 4, 1, 1, 1))
+    fine = solid_modes(L, B, T0, constant(T0), WOOD, 8, mesh=SolidMesh(36, 6, 6, 1, 1, 1))
+    f_c = match_modes(fine.modes, coarse.modes)
+    extrapolated = fine.f_hz + (fine.f_hz - f_c) / (1.5**4 - 1)
+    own = psolid_modes(L, B, T0, constant(T0), WOOD, 8)
+    f_own = match_modes(fine.modes, own.modes)
+    # measured: within 0.001 cent on all eight modes (torsion 1-3, lateral 1-2 included), while
+    # the finer 27-node mesh alone (55k unknowns) is still up to 0.11 cent high; coarser pairs
+    # are not yet in the O(h^4) range for torsion (0.23 cent from (24, 3, 3) -> (36, 4, 4))
+    assert np.all(np.abs(cents(f_own, extrapolated)) < 0.02)
+
+
+def test_isotropic_material_gives_the_same_as_its_orthotropic_form():
+    iso = isotropic(70e9, 0.33, 2700.0)
+    r = psolid_modes(L, B, T0, UNDERCUT, iso, 6, PMesh(nx=4, px=4, py=3, pz=3))
+    assert r.status == 0 and r.message == "converged"
+    assert np.all(np.diff(r.f_hz) >= 0)
+
+
+@pytest.mark.parametrize(
+    ("kwargs", "match"),
+    [
+        ({"length": -0.4}, "length"),
+        ({"width": 0.0}, "width"),
+        ({"blank_thickness": float("nan")}, "blank_thickness"),
+        ({"thickness": constant(0.03)}, "exceeds blank_thickness"),
+        ({"count": 0}, "count"),
+    ],
+)
+def test_bad_arguments_are_refused(kwargs, match):
+    args = dict(length=L, width=B, blank_thickness=T0, thickness=UNDERCUT, material=WOOD)
+    with pytest.raises(ValueError, match=match):
+        psolid_modes(**{**args, **kwargs})
+
+
+@pytest.mark.parametrize("field", ["nx", "py"])
+def test_bad_mesh_is_refused(field):
+    with pytest.raises(ValueError, match=f"mesh {field}"):
+        PMesh(**{field: 0})
