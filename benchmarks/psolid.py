@@ -23,10 +23,11 @@ import time
 
 import numpy as np
 from threadpoolctl import threadpool_limits
+from tonewright.acoustics.pitch import cents
 from tonewright.forward.geometry import PiecewiseLinear
 from tonewright.forward.orthotropic import Orthotropic
 from tonewright.forward.psolid import PMesh, psolid_convergence, psolid_modes
-from tonewright.forward.solid import cents, match_modes, solid_modes
+from tonewright.forward.solid import match_modes, solid_modes
 
 WOOD = Orthotropic(20e9, 2.2e9, 1.2e9, 1.6e9, 1.5e9, 0.4e9, 0.37, 0.45, 0.6, 1000.0)
 WANTED = {"bending": 4, "torsion": 3, "lateral": 2}

@@ -49,11 +49,12 @@ import numpy as np
 from scipy.linalg import cho_factor, cho_solve
 from scipy.linalg.lapack import dpotrf, dpotri
 from scipy.sparse.linalg import LinearOperator, eigsh
+from tonewright.acoustics.pitch import cents
 from tonewright.forward.basis import c0_basis, gauss_legendre
 from tonewright.forward.classify import ModeSet, classify_modes
 from tonewright.forward.geometry import Field, strongest_corners
 from tonewright.forward.orthotropic import Orthotropic, bar_axes, stiffness_matrix
-from tonewright.forward.solid import _single_threaded_blas, cents, match_modes, negative_shift
+from tonewright.forward.solid import _single_threaded_blas, match_modes, negative_shift
 
 __all__ = ["PMesh", "PSolidConvergence", "psolid_convergence", "psolid_modes"]
 
@@ -75,6 +76,8 @@ class PMesh:
     px: int = 7
     py: int = 6
     pz: int = 5
+    grade_corners: bool = True  # small elements at sharp corners of the profile, nz >= 2
+    bottom_layer: float = 0.15  # with nz >= 2: the bottom element's share of the thickness
 
     def __post_init__(self) -> None:
         for name in ("nx", "ny", "nz"):
@@ -85,6 +88,8 @@ class PMesh:
             value = getattr(self, name)
             if not isinstance(value, int | np.integer) or isinstance(value, bool) or value < 2:
                 raise ValueError(f"mesh {name} = {value!r}: must be a whole number >= 2")
+        if not 0.0 < self.bottom_layer < 1.0:
+            raise ValueError(f"mesh bottom_layer = {self.bottom_layer!r}: allowed 0 < share < 1")
 
     def lowered(self) -> PMesh:
         """The nested space one degree lower in every direction."""
@@ -355,9 +360,11 @@ class _CondensedCholesky:
 
 
 def _free_modes(
-    pencil: _KroneckerPencil, p: int, count: int, sigma: float
+    pencil: _KroneckerPencil, p: int, count: int, sigma: float, fmax_hz: float | None = None
 ) -> tuple[np.ndarray, np.ndarray, str]:
-    """Lowest ``count`` flexible modes of a free problem with three rigid-body modes."""
+    """Lowest ``count`` flexible modes of a free problem with three rigid-body modes; with
+    ``fmax_hz`` every mode up to it (the count doubles until one lies above; the factor of
+    K - sigma M is reused)."""
     n_x, m = pencil.M_x.shape[0], pencil.M_s.shape[0]
     n = n_x * m
     with _single_threaded_blas():
@@ -369,15 +376,29 @@ def _free_modes(
     )
     K_op = LinearOperator((n, n), matvec=lambda v: v, dtype=float)  # unused in shift-invert
     k = min(count + 3, n - 2)
-    with _single_threaded_blas():
-        lam, vec = eigsh(K_op, k=k, M=M_op, sigma=sigma, which="LM", OPinv=OPinv)
-    order = np.argsort(lam)
-    lam, vec = lam[order], vec[:, order]
     message = "converged"
+    while True:
+        with _single_threaded_blas():
+            lam, vec = eigsh(K_op, k=k, M=M_op, sigma=sigma, which="LM", OPinv=OPinv)
+        order = np.argsort(lam)
+        lam, vec = lam[order], vec[:, order]
+        if fmax_hz is None or np.sqrt(max(lam[-1], 0.0)) / (2.0 * np.pi) > fmax_hz:
+            break
+        if k >= min(_MAX_MODES, n - 2):
+            message = f"stopped at {k - 3} modes, all below fmax_hz = {fmax_hz:g}"
+            break
+        k = min(2 * k, _MAX_MODES, n - 2)
     if lam[2] > 1e-6 * lam[3]:
         message = "rigid-body modes not separated from the flexible ones; check the model"
     f_hz = np.sqrt(np.clip(lam[3:], 0.0, None)) / (2.0 * np.pi)
-    return f_hz, vec[:, 3:], message
+    vec = vec[:, 3:]
+    if fmax_hz is not None:
+        keep = f_hz <= fmax_hz
+        f_hz, vec = f_hz[keep], vec[:, keep]
+    return f_hz, vec, message
+
+
+_MAX_MODES = 120
 
 
 # ----------------------------------------------------------------------------------------------
@@ -403,6 +424,44 @@ _SYMMETRY = (
 )
 
 
+def _length_ends(
+    length: float, thickness: Field, nx: int, extra: np.ndarray | None, grade: bool
+) -> tuple[np.ndarray, bool]:
+    """Element ends along x and whether the profile has sharp corners.
+
+    Ends: ``nx`` equal elements, the profile's corners, ``extra``; next to every sharp corner
+    (a change of slope over 0.05, about 3 degrees) a small element a fifth of the equal size
+    or of the distance to the next corner, whichever is less
+    (geometric grading, Szabo & Babuska 1991, ch. 14: the corner's stress singularity is then
+    resolved by the degree instead of slowing the whole bar to an algebraic rate)."""
+    points = np.asarray(thickness.breakpoints, dtype=float)
+    corners = strongest_corners((thickness,), points, length, 16)
+    eps = 1e-6 * length
+    slope_left = (thickness(corners) - thickness(corners - eps)) / eps
+    slope_right = (thickness(corners + eps) - thickness(corners)) / eps
+    inside = (corners > eps) & (corners < length - eps)
+    sharp = corners[inside & (np.abs(slope_right - slope_left) > 0.05)]
+    size = length / nx
+    others = np.concatenate([[0.0], corners[inside], [length]])
+    gap = np.array([np.min(np.abs(others[np.abs(others - c) > eps] - c)) for c in sharp])
+    delta = 0.2 * np.minimum(size, gap) if sharp.size and grade else np.zeros(0)
+    grading = np.concatenate([sharp - delta, sharp + delta]) if delta.size else delta
+    added = np.asarray(extra if extra is not None else [], dtype=float)
+    inner = np.concatenate([corners, grading, added])
+    uniform = np.linspace(0.0, length, nx + 1)
+    ends = np.unique(np.concatenate([uniform, inner[(inner > 0) & (inner < length)]]))
+    ends = ends[np.concatenate([[True], np.diff(ends) > 1e-3 * size])]
+    ends[-1] = length
+    return ends, bool(sharp.size)
+
+
+def _depth_ends(nz: int, ratio: float = 0.15) -> np.ndarray:
+    """Element ends through the thickness (s = 0 bottom face, 1 top): geometric toward the
+    bottom, where the corners of a cut lie (their stress singularity needs small elements
+    next to it for the p-version to converge fast, Szabo & Babuska 1991, ch. 14)."""
+    return np.concatenate([[0.0], ratio ** np.arange(nz - 1, 0, -1), [1.0]])
+
+
 def _check(length: float, width: float, blank_thickness: float, h: np.ndarray) -> None:
     for name, value in (("length", length), ("width", width), ("blank_thickness", blank_thickness)):
         if not (np.isfinite(value) and value > 0):
@@ -422,12 +481,16 @@ def psolid_modes(
     count: int = 12,
     mesh: PMesh | None = None,
     element_ends: np.ndarray | None = None,
+    fmax_hz: float | None = None,
 ) -> ModeSet:
     """Lowest ``count`` free-free flexible modes of an undercut bar, p-version hexahedra.
 
     ``thickness`` is the local thickness h(x) (m) below the flat top face at z =
     ``blank_thickness``; ``count`` modes are computed in each symmetry class and the lowest
-    ``count`` of both returned, classified by family. ``element_ends`` (m) adds element ends
+    ``count`` of both returned, classified by family; with ``fmax_hz`` every mode up to that
+    frequency (``count`` is then the first batch per class). With ``mesh.grade_corners`` a profile
+    with sharp corners gets small elements next to them and two graded elements through the
+    thickness. ``element_ends`` (m) adds element ends
     where the profile is less smooth than its corners show (e.g. where a cut's curvature
     jumps): p-convergence is exponential only where the solution is smooth inside elements.
     """
@@ -435,20 +498,16 @@ def psolid_modes(
         raise ValueError(f"material = {type(material).__name__}: must be an Orthotropic")
     if not isinstance(count, int | np.integer) or count < 1:
         raise ValueError(f"count = {count!r}: must be a whole number >= 1")
+    if fmax_hz is not None and not (np.isfinite(fmax_hz) and fmax_hz > 0):
+        raise ValueError(f"fmax_hz = {fmax_hz!r}: must be a positive frequency or None")
     mesh = mesh or PMesh()
     _check(length, width, blank_thickness, np.asarray(thickness(np.linspace(0, length, 201))))
-    corners = strongest_corners(
-        (thickness,), np.asarray(thickness.breakpoints, dtype=float), length, 16
-    )
-    uniform = np.linspace(0.0, length, mesh.nx + 1)
-    extra = np.asarray(element_ends if element_ends is not None else [], dtype=float)
-    inner = np.concatenate([corners, extra])
-    ends = np.unique(np.concatenate([uniform, inner[(inner > 0) & (inner < length)]]))
-    ends = ends[np.concatenate([[True], np.diff(ends) > 1e-6 * length])]
-    ends[-1] = length
+    ends, sharp = _length_ends(length, thickness, mesh.nx, element_ends, mesh.grade_corners)
+    if sharp and mesh.grade_corners:
+        mesh = replace(mesh, nz=max(mesh.nz, 2))
     x_axis = _Axis(ends, mesh.px)
     y_axis = _Axis(np.linspace(0.0, 0.5 * width, mesh.ny + 1), mesh.py)
-    z_axis = _Axis(np.linspace(0.0, 1.0, mesh.nz + 1), mesh.pz)
+    z_axis = _Axis(_depth_ends(mesh.nz, mesh.bottom_layer), mesh.pz)
     xs = _x_samples(x_axis, thickness, mesh.px + 3)
     _check(length, width, blank_thickness, np.concatenate(xs.h))
     pencil = _assemble(x_axis, y_axis, z_axis, xs, stiffness_matrix(material), material.rho)
@@ -475,7 +534,7 @@ def psolid_modes(
         held[-1, :, list(fixed)] = True  # the mid-width plane is the last y vertex
         keep = layer[~held]
         n_dof += x_axis.size * keep.size
-        f_hz, vec, message = _free_modes(pencil.restricted(keep), mesh.px, count, sigma)
+        f_hz, vec, message = _free_modes(pencil.restricted(keep), mesh.px, count, sigma, fmax_hz)
         coef = np.zeros((f_hz.size, x_axis.size, Ny * Nz * 3))
         coef[:, :, keep] = vec.T.reshape(f_hz.size, x_axis.size, keep.size)
         coef = coef.reshape(f_hz.size, x_axis.size, Ny, Nz, 3) / np.sqrt(2.0)
@@ -485,7 +544,8 @@ def psolid_modes(
         f_parts.append(f_hz)
         messages.append(message)
     f_all = np.concatenate(f_parts)
-    order = np.argsort(f_all, kind="stable")[:count]
+    order = np.argsort(f_all, kind="stable")
+    order = order if fmax_hz is not None else order[:count]
     shapes = np.concatenate(shape_parts)[order]
     mirror = coords[:, ::-1].copy()
     mirror[..., 1] = width - mirror[..., 1]
