@@ -24,9 +24,16 @@ from tonewright.forward import (
     Support,
     constant,
     families_of,
+    hole_centre_height,
     solve,
 )
-from tonewright.forward.modal import assemble_family, discretise, lowest_modes, section_coefficients
+from tonewright.forward.modal import (
+    assemble_family,
+    discretise,
+    hole_data,
+    lowest_modes,
+    section_coefficients,
+)
 
 from tonewright.partfile import parse_part
 
@@ -226,6 +233,19 @@ def test_suspension_hole_at_the_node_flattens_the_bar(diameter, offset):
     drilled = dataclasses.replace(blank, holes=(Hole(node, diameter, h / 2 + offset),))
     lam_drilled, lam_blank = _lam_pair(drilled, blank)
     assert lam_drilled[0] < lam_blank[0]
+
+
+def test_hole_without_height_sits_at_local_mid_thickness():
+    # The project's convention (no source): a hole given no height is drilled at half the local
+    # thickness; a given height is kept as it is.
+    assert hole_centre_height(None, 0.018) == 0.009
+    assert hole_centre_height(0.004, 0.018) == 0.004
+    wood = Material(E=12e9, G=0.8e9, rho=700.0)
+    taper = PiecewiseLinear((0.0, 0.4), (0.024, 0.016))
+    bar = Bar(0.4, constant(0.05), taper, wood, holes=(Hole(0.1, 0.004), Hole(0.3, 0.004, 0.005)))
+    chord, z = hole_data(bar, np.array([0.1, 0.3]))
+    assert z == pytest.approx([0.5 * float(taper(np.array([0.1]))[0]), 0.005], rel=1e-15)
+    assert chord == pytest.approx([0.004, 0.004], rel=1e-12)
 
 
 @given(bar=bars(holes=False), at=st.floats(0.0, 1.0), grams=st.floats(0.1, 500.0))

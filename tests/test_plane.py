@@ -23,10 +23,11 @@ from test_solid import (
     cowper_rectangle,
     timoshenko_free_free,
 )
+from tonewright.acoustics.pitch import cents
 from tonewright.forward.geometry import PiecewiseLinear, constant
 from tonewright.forward.orthotropic import bar_axes, plane_stress_xz
 from tonewright.forward.plane import PlaneMesh, assemble_plane, plane_modes, profile_grid
-from tonewright.forward.solid import SolidMesh, cents, solid_modes
+from tonewright.forward.solid import SolidMesh, solid_modes
 
 
 def _plate_bound_cents(material) -> float:

@@ -15,10 +15,13 @@ from hypothesis import given
 from hypothesis import strategies as st
 from scipy.linalg import expm
 from scipy.optimize import brentq
+from tonewright.acoustics.pitch import cents
 from tonewright.forward.geometry import PiecewiseLinear, constant
 from tonewright.forward.orthotropic import (
     Orthotropic,
+    OrthotropicConstants,
     bar_axes,
+    compliance_lrt,
     compliance_matrix,
     isotropic,
     plane_stress_xz,
@@ -28,7 +31,6 @@ from tonewright.forward.solid import (
     SolidMesh,
     _mirror_grid,
     assemble_solid,
-    cents,
     graded_stations,
     node_grid,
     reentrant_kinks,
@@ -190,6 +192,26 @@ def test_valid_materials_give_spd_stiffness(E, G, s):
 def test_material_validation(kwargs, match):
     with pytest.raises(ValueError, match=match):
         Orthotropic(**{**WOOD.__dict__, **kwargs})
+
+
+def test_constants_alone_and_with_density():
+    # One dataclass holds the nine constants; the models' material adds rho and the sawing.
+    nine = {k: v for k, v in WOOD.__dict__.items() if k not in ("rho", "thickness_axis")}
+    constants = OrthotropicConstants(**nine)
+    assert Orthotropic.from_constants(constants, WOOD.rho) == WOOD
+    flat = Orthotropic.from_constants(constants, WOOD.rho, "R")
+    assert flat.thickness_axis == "R" and isinstance(flat, OrthotropicConstants)
+    np.testing.assert_array_equal(compliance_lrt(constants), compliance_lrt(WOOD))
+    # scaling keeps the ratios (and, on the models' material, rho and the sawing)
+    stiff = WOOD.scaled(2.0, 3.0)
+    assert (stiff.E_T / stiff.E_L, stiff.G_RT / stiff.G_LT) == pytest.approx(
+        (WOOD.E_T / WOOD.E_L, WOOD.G_RT / WOOD.G_LT), rel=1e-15
+    )
+    assert (stiff.E_L, stiff.G_LR, stiff.rho) == (2.0 * WOOD.E_L, 3.0 * WOOD.G_LR, WOOD.rho)
+    with pytest.raises(ValueError, match="Poisson"):
+        OrthotropicConstants(**{**nine, "nu_LR": 4.0})  # beyond sqrt(E_L / E_R) = 3.0
+    with pytest.raises(ValueError, match="G_LT"):
+        OrthotropicConstants(**{**nine, "G_LT": -1.0})
 
 
 def test_isotropic_validation():

@@ -26,6 +26,7 @@ from dataclasses import dataclass
 import numpy as np
 from scipy.optimize import brentq
 
+from tonewright.acoustics.pitch import cents
 from tonewright.errors import InputError
 from tonewright.shop.cautions import caution_lines, comment_lines
 
@@ -63,10 +64,6 @@ def _pos(name: str, v: object) -> float:
     if not math.isfinite(x) or x <= 0:
         raise InputError(f"{name}: {v!r} must be positive")
     return x
-
-
-def _cents(f: float, ref: float) -> float:
-    return 1200.0 * math.log2(f / ref)
 
 
 # --- tubes ----------------------------------------------------------------------------------
@@ -122,7 +119,7 @@ def _tube_rows(tubes: Sequence[TubeCut]) -> list[dict[str, str]]:
     for t in tubes:
         dev = ""
         if t.target_hz and t.predicted_hz:
-            dev = f"{_cents(t.predicted_hz, t.target_hz):+.1f}"
+            dev = f"{cents(t.predicted_hz, t.target_hz):+.1f}"
         rows.append(
             {
                 "name": t.name,
