@@ -30,13 +30,14 @@ __all__ = ["ShopPart"]
 _END_SLACK_M = 1e-9
 
 
-def _positive(name: str, value: object) -> float:
+def _positive(name: str, value: object, what: str = "length in metres") -> float:
+    """``value`` as a positive finite float, else an InputError naming ``name`` and ``what``."""
     try:
         v = float(value)  # type: ignore[arg-type]
     except (TypeError, ValueError):
-        raise InputError(f"{name}: {value!r} is not a number; give a length in metres") from None
+        raise InputError(f"{name}: {value!r} is not a number; give a {what}") from None
     if not math.isfinite(v) or v <= 0:
-        raise InputError(f"{name}: {value!r} must be a positive finite length in metres")
+        raise InputError(f"{name}: {value!r} must be a positive finite {what}")
     return v
 
 

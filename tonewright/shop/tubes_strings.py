@@ -29,6 +29,7 @@ from scipy.optimize import brentq
 from tonewright.acoustics.pitch import cents
 from tonewright.errors import InputError
 from tonewright.shop.cautions import caution_lines, comment_lines
+from tonewright.shop.part import _positive
 
 __all__ = [
     "TubeCut",
@@ -57,13 +58,7 @@ def uniform_node_fraction() -> float:
 
 
 def _pos(name: str, v: object) -> float:
-    try:
-        x = float(v)  # type: ignore[arg-type]
-    except (TypeError, ValueError):
-        raise InputError(f"{name}: {v!r} is not a number") from None
-    if not math.isfinite(x) or x <= 0:
-        raise InputError(f"{name}: {v!r} must be positive")
-    return x
+    return _positive(name, v, "number")
 
 
 # --- tubes ----------------------------------------------------------------------------------
