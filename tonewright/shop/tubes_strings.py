@@ -40,7 +40,6 @@ __all__ = [
     "uniform_node_fraction",
     "winding_schedule",
     "winding_schedule_csv",
-    "wrap_linear_density",
 ]
 
 _BETA_L1 = 4.73004074  # first root of cos x cosh x = 1 (Thomson, App. D)
@@ -198,15 +197,6 @@ def tube_cut_sheet(tubes: Sequence[TubeCut], kerf_mm: float = 2.0) -> str:
 
 
 # --- strings --------------------------------------------------------------------------------
-def wrap_linear_density(
-    wrap_diameter_m: float, wrap_density_kg_m3: float, core_diameter_m: float, pitch_m: float
-) -> float:
-    """Added linear density (kg/m) of a single-layer helical wrap at ``pitch_m``."""
-    D = core_diameter_m + wrap_diameter_m
-    mu_wire = wrap_density_kg_m3 * math.pi * wrap_diameter_m**2 / 4
-    return mu_wire * math.hypot(math.pi * D, pitch_m) / pitch_m
-
-
 @dataclass(frozen=True)
 class WoundString:
     """A string whose linear density ``mu(x)`` is built from a core and a helical wrap."""
