@@ -6,7 +6,7 @@ lowers, adding stiffness raises, enlarging the trial space lowers every ordered 
 Courant, R. & Hilbert, D., 1953, *Methods of Mathematical Physics*, vol. 1, ch. VI), the
 dimensional scaling of the Euler-Bernoulli beam (f ~ h / L^2 sqrt(E / rho), independent of the
 width), and trade facts (a central undercut flattens the fundamental; drilling the suspension
-holes flattens a bar: REFERENCES.md, "Mallet-instrument practice", trade).
+holes flattens a bar: common practice, no source).
 """
 
 import dataclasses
@@ -208,7 +208,8 @@ def _lam_pair(part_a, part_b, family="bending", count=3, theory="timoshenko"):
     theory=st.sampled_from(["timoshenko", "euler-bernoulli"]),
 )
 def test_small_central_undercut_lowers_the_fundamental(depth, half, theory):
-    # Trade (REFERENCES.md): removing material at the centre lowers the fundamental.
+    # Trade (common practice, no source): removing material at the centre lowers the
+    # fundamental.
     L, h = 0.4, 0.022
     wood = Material(E=24e9, G=1.512e9, rho=1010.0, nu=0.476)  # library honduras-rosewood
     blank = Bar(L, constant(0.055), constant(h), wood)
@@ -224,8 +225,8 @@ def test_small_central_undercut_lowers_the_fundamental(depth, half, theory):
     offset=st.floats(-0.003, 0.003),
 )
 def test_suspension_hole_at_the_node_flattens_the_bar(diameter, offset):
-    # Trade (REFERENCES.md): drilling the suspension holes flattens a bar. The hole goes at the
-    # computed first-mode node, at or near mid-thickness.
+    # Trade (common practice, no source): drilling the suspension holes flattens a bar. The
+    # hole goes at the computed first-mode node, at or near mid-thickness.
     L, h = 0.4, 0.022
     wood = Material(E=24e9, G=1.512e9, rho=1010.0, nu=0.476)
     blank = Bar(L, constant(0.055), constant(h), wood)

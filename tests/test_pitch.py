@@ -224,7 +224,7 @@ def _free_free_beta(n: int) -> float:
 
 
 def test_free_free_roots_match_the_handbook():
-    # Thomson, Theory of Vibration with Applications, App. D (via REFERENCES.md), and the
+    # Thomson, Theory of Vibration with Applications, App. D, Table D.1, and the
     # asymptote (2n+1) pi/2 for n = 6 (exact to about 1e-8 there: cosh x ~ 1e8).
     table = [4.73004074, 7.85320462, 10.99560784, 14.13716549, 17.27875966]
     for n, beta in enumerate(table, start=1):

@@ -153,7 +153,7 @@ def test_central_undercut_lowers_the_fundamental_and_modes_are_named():
     blank = plane_modes(L, B, T0, constant(T0), WOOD, 6, mesh=PlaneMesh(32, 4))
     cut = PiecewiseLinear([0.0, 0.15, 0.2, 0.25, 0.4], [T0, T0, 0.8 * T0, T0, T0])
     cut_bar = plane_modes(L, B, T0, cut, WOOD, 6, mesh=PlaneMesh(32, 4))
-    assert cut_bar.f_hz[0] < blank.f_hz[0]  # trade fact (REFERENCES.md)
+    assert cut_bar.f_hz[0] < blank.f_hz[0]  # trade fact (common practice, no source)
     bending = [m for m in blank.modes if m.family == "bending"]
     assert [m.order for m in bending] == list(range(1, len(bending) + 1))
     assert all(m.nodes == m.order + 1 for m in bending)  # free-free bending n: n + 1 nodes

@@ -36,7 +36,7 @@ def rows(text: str) -> list[dict[str, str]]:
 
 
 def test_uniform_node_fraction():
-    # Free-free beam mode-1 node at 0.22416 L (REFERENCES.md: derived from the exact mode
+    # Free-free beam mode-1 node at 0.22416 L (derived from the exact mode
     # shape with beta L = 4.73004074, Thomson, Theory of Vibration, App. D, Table D.1).
     assert uniform_node_fraction() == pytest.approx(0.22416, abs=5e-6)
     # The root used satisfies cos x cosh x = 1 (to the 8 digits quoted).
