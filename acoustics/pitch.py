@@ -6,7 +6,9 @@ Equations
   ``f = a4 * 2 ** ((m - 69) / 12)`` with ``m = 12 (octave + 1) + semitone``; A4 = 440 Hz is the
   standard pitch of ISO 16:1975. Octaves are numbered in scientific pitch notation (C4 = middle
   C), from -1 to 9.
-- Interval in cents: ``c = 1200 log2(f / f_ref)``; a ratio ``r`` is ``1200 log2 r`` cents.
+- Interval in cents: ``c = 1200 log2(f / f_ref) = (1200 / ln 2) ln(f / f_ref)``; a ratio ``r``
+  is ``1200 log2 r`` cents. ``CENTS_PER_LN = 1200 / ln 2`` turns derivatives of ``ln f`` into
+  cents.
 - Critical bandwidth (Zwicker, E. & Terhardt, E. (1980), "Analytical expressions for
   critical-band rate and critical bandwidth as a function of frequency", J. Acoust. Soc. Am.
   68(5), 1523-1525, eq. 2): ``CB = 25 + 75 (1 + 1.4 (f/kHz)^2)^0.69`` Hz.
@@ -48,6 +50,7 @@ from numpy.typing import ArrayLike
 from tonewright.errors import InputError
 
 __all__ = [
+    "CENTS_PER_LN",
     "cents",
     "cents_to_ratio",
     "critical_bandwidth_hz",
@@ -63,6 +66,9 @@ __all__ = [
 
 _CENTS_PER_OCTAVE = 1200.0
 _A4_MIDI = 69
+
+CENTS_PER_LN = float(_CENTS_PER_OCTAVE / np.log(2.0))
+"""Cents per unit of natural log: ``c = CENTS_PER_LN * ln(f / f_ref)``, ``1200 / ln 2``."""
 
 _SEMITONE = {"C": 0, "D": 2, "E": 4, "F": 5, "G": 7, "A": 9, "B": 11}
 _ACCIDENTAL = {"": 0, "#": 1, "♯": 1, "b": -1, "♭": -1}

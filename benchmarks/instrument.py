@@ -13,8 +13,8 @@ file's ``attempts``) until one meets its target, then an independent accuracy-co
 of the written part (``tonewright.design.certify``). Bars are spread over a process pool, one
 BLAS thread each.
 
-Prints the wall time (targets on a 2-core machine: under 30 s with the beam model, under 10 min
-with the 2D correction), the bars that meet their targets, and where the time goes: per-bar
+Prints the wall time (targets on a 2-core, 24 GiB machine: under 30 s with the beam model, under
+10 min with the 2D correction), the bars that meet their targets, and where the time goes: per-bar
 times, forward solves, the cost of one forward solve and the share spent on bars that missed.
 """
 

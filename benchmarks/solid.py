@@ -31,10 +31,11 @@ from pathlib import Path
 sys.path[:] = [p for p in sys.path if Path(p or ".").resolve() != Path(__file__).resolve().parent]
 
 import numpy as np  # noqa: E402
+from tonewright.acoustics.pitch import cents  # noqa: E402
 from tonewright.forward.geometry import PiecewiseLinear  # noqa: E402
 from tonewright.forward.orthotropic import Orthotropic  # noqa: E402
 from tonewright.forward.plane import PlaneMesh, plane_modes  # noqa: E402
-from tonewright.forward.solid import SolidMesh, cents, solid_modes  # noqa: E402
+from tonewright.forward.solid import SolidMesh, solid_modes  # noqa: E402
 from tonewright.forward.solid import match_modes as match  # noqa: E402
 
 WOOD = Orthotropic(20e9, 2.2e9, 1.2e9, 1.6e9, 1.5e9, 0.4e9, 0.37, 0.45, 0.6, 1000.0)

@@ -14,6 +14,7 @@ from tonewright.forward.geometry import (
     Support,
     Tube,
     constant,
+    hole_centre_height,
 )
 from tonewright.forward.modal import FAMILIES, ModalResult, Mode, families_of, solve
 
@@ -32,5 +33,6 @@ __all__ = [
     "Tube",
     "constant",
     "families_of",
+    "hole_centre_height",
     "solve",
 ]

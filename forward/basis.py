@@ -24,17 +24,7 @@ from functools import lru_cache
 import numpy as np
 from numpy.polynomial import Legendre, Polynomial
 
-__all__ = ["c0_basis", "c0_count", "c1_basis", "c1_count", "gauss_legendre"]
-
-
-def c0_count(p: int) -> int:
-    """Local functions of the C0 family of degree p: 2 end values + p - 1 interior."""
-    return p + 1
-
-
-def c1_count(p: int) -> int:
-    """Local functions of the C1 family of degree p: 4 Hermite + p - 3 interior."""
-    return p + 1
+__all__ = ["c0_basis", "c1_basis", "gauss_legendre"]
 
 
 @lru_cache(maxsize=32)

@@ -24,6 +24,7 @@ __all__ = [
     "Support",
     "Tube",
     "constant",
+    "hole_centre_height",
     "strongest_corners",
 ]
 
@@ -104,6 +105,12 @@ class Hole:
     x: float
     diameter: float
     height: float | None = None
+
+
+def hole_centre_height(height: float | None, local_thickness: float) -> float:
+    """Height of a hole's centre above the bottom face: ``height`` if given, else (None) half
+    the ``local_thickness`` at the hole, the mid-thickness default of :class:`Hole`."""
+    return 0.5 * local_thickness if height is None else height
 
 
 SupportKind = Literal["clamp", "pin", "spring", "mass", "touch"]

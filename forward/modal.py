@@ -25,6 +25,7 @@ from dataclasses import dataclass, field
 
 import numpy as np
 import scipy.linalg
+from tonewright.acoustics.pitch import ratio_to_cents
 from tonewright.forward.fem import (
     FieldLayout,
     Quadrature,
@@ -37,7 +38,14 @@ from tonewright.forward.fem import (
     evaluate_field,
     field_matrices,
 )
-from tonewright.forward.geometry import Bar, Part, String, Tube, strongest_corners
+from tonewright.forward.geometry import (
+    Bar,
+    Part,
+    String,
+    Tube,
+    hole_centre_height,
+    strongest_corners,
+)
 from tonewright.forward.sections import (
     cowper_hollow_circle,
     cowper_rectangle,
@@ -130,9 +138,7 @@ def hole_data(part: Bar, x: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     z = np.zeros_like(x)
     for hole in part.holes:
         c = hole_chord(x, hole.x, hole.diameter)
-        height = hole.height
-        if height is None:
-            height = 0.5 * float(part.thickness(np.array([hole.x]))[0])
+        height = hole_centre_height(hole.height, float(part.thickness(np.array([hole.x]))[0]))
         chord = chord + c
         z = np.where(c > 0, height, z)
     return chord, z
@@ -511,7 +517,8 @@ def _modes_at(
 
 
 def _cents_between(lam_hi: np.ndarray, lam_lo: np.ndarray) -> np.ndarray:
-    return 600.0 * np.log2(np.maximum(lam_lo, 1e-300) / np.maximum(lam_hi, 1e-300))
+    # f goes as sqrt(lambda): half the cents of the eigenvalue ratio
+    return 0.5 * ratio_to_cents(np.maximum(lam_lo, 1e-300) / np.maximum(lam_hi, 1e-300))
 
 
 def solve(

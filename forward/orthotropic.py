@@ -20,6 +20,9 @@ iff all moduli are positive and 1 - nu_12 nu_21 - nu_23 nu_32 - nu_13 nu_31
 - 2 nu_21 nu_32 nu_13 > 0 with |nu_ij| < sqrt(E_i / E_j) (Lempriere, B.M. (1968), "Poisson's
 ratio in orthotropic materials", AIAA J. 6(11), 2226-2227); it is checked numerically here.
 
+``OrthotropicConstants`` holds the nine constants alone (what a material library knows about a
+wood); ``Orthotropic`` adds the density and how the bar was sawn, which is what the models take.
+
 Bar axes: x along the length (always L), y across the width, z through the thickness (the
 undercut side). ``thickness_axis`` says which of R and T lies along z:
 
@@ -34,17 +37,16 @@ Plane stress in the x-z plane (sigma_yy = sigma_yz = sigma_xy = 0) keeps the row
 
 from __future__ import annotations
 
-from dataclasses import dataclass
-from typing import Literal, NamedTuple
+from dataclasses import dataclass, fields, replace
+from typing import Literal, NamedTuple, Self
 
 import numpy as np
-from tonewright.forward.geometry import Material
 
 __all__ = [
     "BarAxes",
     "Orthotropic",
+    "OrthotropicConstants",
     "bar_axes",
-    "beam_material",
     "compliance_lrt",
     "compliance_matrix",
     "isotropic",
@@ -56,12 +58,12 @@ ThicknessAxis = Literal["R", "T"]
 
 
 @dataclass(frozen=True)
-class Orthotropic:
-    """Orthotropic material with L along the bar; moduli in Pa, density in kg/m^3.
+class OrthotropicConstants:
+    """The nine engineering constants of wood in its own axes L, R, T; moduli in Pa.
 
-    ``thickness_axis``: ``"T"`` (default, quarter-sawn: rings vertical seen end-on) or ``"R"``
-    (flat-sawn: rings parallel to the top face). Poisson ratios follow the Wood Handbook
-    convention (nu_LR: contraction along R per extension along L under a stress along L).
+    Poisson ratios follow the Wood Handbook convention (nu_LR: contraction along R per extension
+    along L under a stress along L). Checked when built: positive moduli, finite Poisson ratios
+    and a positive-definite compliance (see the module docstring).
     """
 
     E_L: float
@@ -73,11 +75,9 @@ class Orthotropic:
     nu_LR: float
     nu_LT: float
     nu_RT: float
-    rho: float
-    thickness_axis: ThicknessAxis = "T"
 
     def __post_init__(self) -> None:
-        for name in ("E_L", "E_R", "E_T", "G_LR", "G_LT", "G_RT", "rho"):
+        for name in ("E_L", "E_R", "E_T", "G_LR", "G_LT", "G_RT"):
             value = getattr(self, name)
             if not (np.isfinite(value) and value > 0):
                 raise ValueError(f"material {name} = {value!r}: must be a positive number")
@@ -85,10 +85,6 @@ class Orthotropic:
             value = getattr(self, name)
             if not np.isfinite(value):
                 raise ValueError(f"material {name} = {value!r}: must be a finite number")
-        if self.thickness_axis not in ("R", "T"):
-            raise ValueError(
-                f"material thickness_axis = {self.thickness_axis!r}: allowed 'R' or 'T'"
-            )
         eig = np.linalg.eigvalsh(compliance_lrt(self))
         if eig.min() <= 0:
             raise ValueError(
@@ -96,6 +92,48 @@ class Orthotropic:
                 f"nu_RT={self.nu_RT}) make the stiffness matrix indefinite; "
                 "need |nu_ij| < sqrt(E_i/E_j) and a positive determinant"
             )
+
+    def scaled(self, e_factor: float, g_factor: float) -> Self:
+        """Normal moduli times ``e_factor``, shear moduli times ``g_factor``; ratios kept."""
+        return replace(
+            self,
+            E_L=self.E_L * e_factor,
+            E_R=self.E_R * e_factor,
+            E_T=self.E_T * e_factor,
+            G_LR=self.G_LR * g_factor,
+            G_LT=self.G_LT * g_factor,
+            G_RT=self.G_RT * g_factor,
+        )
+
+
+@dataclass(frozen=True)
+class Orthotropic(OrthotropicConstants):
+    """Orthotropic material with L along the bar: the nine constants (Pa), the density
+    ``rho`` (kg/m^3) and which wood axis lies through the bar's thickness.
+
+    ``thickness_axis``: ``"T"`` (default, quarter-sawn: rings vertical seen end-on) or ``"R"``
+    (flat-sawn: rings parallel to the top face).
+    """
+
+    rho: float
+    thickness_axis: ThicknessAxis = "T"
+
+    def __post_init__(self) -> None:
+        super().__post_init__()
+        if not (np.isfinite(self.rho) and self.rho > 0):
+            raise ValueError(f"material rho = {self.rho!r}: must be a positive number")
+        if self.thickness_axis not in ("R", "T"):
+            raise ValueError(
+                f"material thickness_axis = {self.thickness_axis!r}: allowed 'R' or 'T'"
+            )
+
+    @classmethod
+    def from_constants(
+        cls, constants: OrthotropicConstants, rho: float, thickness_axis: ThicknessAxis = "T"
+    ) -> Orthotropic:
+        """The material of a bar cut from wood with these ``constants``."""
+        nine = {f.name: getattr(constants, f.name) for f in fields(OrthotropicConstants)}
+        return cls(**nine, rho=rho, thickness_axis=thickness_axis)
 
 
 def isotropic(E: float, nu: float, rho: float) -> Orthotropic:
@@ -141,9 +179,8 @@ def _compliance(E1, E2, E3, G23, G13, G12, nu12, nu13, nu23) -> np.ndarray:
     return S
 
 
-def compliance_lrt(m) -> np.ndarray:
-    """6x6 compliance in the wood's own axes, Voigt order (L, R, T, RT, LT, LR), 1/Pa; ``m``
-    is anything carrying the nine engineering constants (E_L ... nu_RT)."""
+def compliance_lrt(m: OrthotropicConstants) -> np.ndarray:
+    """6x6 compliance in the wood's own axes, Voigt order (L, R, T, RT, LT, LR), 1/Pa."""
     return _compliance(m.E_L, m.E_R, m.E_T, m.G_RT, m.G_LT, m.G_LR, m.nu_LR, m.nu_LT, m.nu_RT)
 
 
@@ -168,9 +205,3 @@ def plane_stress_xz(material: Orthotropic) -> np.ndarray:
     keep = [0, 2, 4]
     C = np.linalg.inv(S[np.ix_(keep, keep)])
     return 0.5 * (C + C.T)
-
-
-def beam_material(material: Orthotropic) -> Material:
-    """The 1-D beam material for vertical bending: E = E_x, G = G_xz, nu = nu_xz."""
-    a = bar_axes(material)
-    return Material(E=a.E_x, G=a.G_xz, rho=material.rho, nu=a.nu_xz)

@@ -47,6 +47,7 @@ from dataclasses import dataclass
 import numpy as np
 import scipy.sparse as sp
 from scipy.sparse.linalg import LinearOperator, eigsh, splu
+from tonewright.acoustics.pitch import cents
 from tonewright.forward.classify import ClassifiedMode, ModeSet, classify_modes
 from tonewright.forward.geometry import Field, strongest_corners
 from tonewright.forward.orthotropic import Orthotropic, bar_axes, stiffness_matrix
@@ -57,7 +58,6 @@ __all__ = [
     "SolidMesh",
     "SolidResult",
     "assemble_solid",
-    "cents",
     "depth_stations",
     "gauss_legendre_3",
     "graded_stations",
@@ -76,11 +76,6 @@ __all__ = [
 
 EigenSolver = Callable[[sp.spmatrix, sp.spmatrix, int, float], tuple[np.ndarray, np.ndarray]]
 """``solver(K, M, k, sigma) -> (lam, vectors)``: the k eigenpairs nearest the shift sigma."""
-
-
-def cents(f: np.ndarray, f_ref: np.ndarray) -> np.ndarray:
-    """Interval from f_ref to f in cents: 1200 log2(f / f_ref)."""
-    return 1200.0 * np.log2(np.asarray(f, dtype=float) / np.asarray(f_ref, dtype=float))
 
 
 # ----------------------------------------------------------------------------------------------

@@ -78,7 +78,7 @@ def test_c0_rate(family, degree):
 
 
 def _robert_lam(bar, count):
-    """Pinned Timoshenko beam, Robert (1996) closed form (REFERENCES.md), rationalised:
+    """Pinned Timoshenko beam, Robert, G. (1996) closed form, rationalised:
     Omega = 2 lambda^4 / (P + sqrt(P^2 - 4 g j lambda^4)), P = (g + j) lambda^2 + 1 (the same
     value, without the cancellation that ruins the printed form for thin beams)."""
     b = float(bar.width(np.array([0.0]))[0])

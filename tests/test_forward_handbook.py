@@ -47,13 +47,13 @@ CLAMPED_PINNED = _roots(lambda x: np.sin(x) - np.cos(x) * np.tanh(x), 3, start=3
 
 
 def test_derived_roots_match_printed_tables():
-    # Thomson, Theory of Vibration with Applications, App. D, Tables D.1-D.3 (4 printed digits,
-    # via REFERENCES.md); further digits there are derived; tolerance: half a unit in the 8th.
+    # Thomson, Theory of Vibration with Applications, App. D, Tables D.1-D.3 (4 printed digits);
+    # further digits are derived; tolerance: half a unit in the 8th.
     assert FREE_FREE == pytest.approx(
         [4.73004074, 7.85320462, 10.99560784, 14.13716549, 17.27875966], abs=5e-9
     )
     assert CLAMPED_FREE == pytest.approx([1.87510407, 4.69409113, 7.85475744], abs=5e-9)
-    # tan x = tanh x (derived, REFERENCES.md): clamped-pinned roots
+    # tan x = tanh x (derived): clamped-pinned roots
     assert CLAMPED_PINNED == pytest.approx([3.92660231, 7.06858275, 10.21017612], abs=5e-9)
 
 
@@ -64,7 +64,7 @@ def test_free_free_frequencies_and_ratios():
     f = np.array([m.frequency_hz for m in res.family("bending")])
     assert f == pytest.approx(_eb_f(FREE_FREE, bar), rel=REL_F)
     # Ratios 1 : 2.75653851 : 5.40391763 : 8.93295035 : 13.3442867 (Thomson App. D, derived
-    # digits, REFERENCES.md); printed to 9 significant digits, so 2e-8 plus the solve tolerance.
+    # digits); printed to 9 significant digits, so 2e-8 plus the solve tolerance.
     assert f / f[0] == pytest.approx(
         [1.0, 2.75653851, 5.40391763, 8.93295035, 13.3442867], rel=2 * REL_F
     )
@@ -95,7 +95,7 @@ def test_free_free_node_positions():
     L = 0.5
     bar = _uniform(length=L)
     modes = solve(bar, {"bending": 4}, theory=EB).family("bending")
-    # Node positions as fractions of L (REFERENCES.md, derived from the exact shapes; 5 digits
+    # Node positions as fractions of L (derived from the exact shapes; 5 digits
     # printed, so +-5e-6 plus the node finder's 1e-9): 0.22416 L is the trade's hanging point.
     printed = [
         [0.22416],
@@ -121,7 +121,7 @@ def test_clamped_free():
     modes = res.family("bending")
     f = np.array([m.frequency_hz for m in modes])
     assert f == pytest.approx(_eb_f(CLAMPED_FREE, bar), rel=REL_F)
-    # f2/f1 = 6.26689 (Thomson, Table D.3, via REFERENCES.md), 6 printed digits.
+    # f2/f1 = 6.26689 (Thomson, Table D.3), 6 printed digits.
     assert f[1] / f[0] == pytest.approx(6.26689, abs=5e-6 + 2 * REL_F * 6.27)
     # Nodes of the cantilever's 2nd and 3rd modes from the exact shape (derived).
     for mode in modes[1:]:
@@ -131,7 +131,7 @@ def test_clamped_free():
 
 def test_pinned_pinned_steel_worked_example():
     # L = 1 m, 50 x 50 mm steel, E = 200 GPa, rho = 7850 kg/m^3: f1 = 114.44 Hz, f2 = 457.76 Hz,
-    # f3 = 1030.0 Hz (closed form f_n = (n pi)^2 / (2 pi L^2) sqrt(EI / rho A), REFERENCES.md);
+    # f3 = 1030.0 Hz (closed form f_n = (n pi)^2 / (2 pi L^2) sqrt(EI / rho A));
     # tolerance: half a unit in the printed last digit.
     bar = _uniform(width=0.05, thickness=0.05, supports=[Support("pin", 0.0), Support("pin", 1.0)])
     res = solve(bar, {"bending": 3}, theory=EB)
@@ -161,7 +161,7 @@ def test_clamped_pinned():
 
 
 # Mabie, H.H. & Rogers, C.B. (1972), "Transverse vibrations of double-tapered cantilever beams",
-# J. Acoust. Soc. Am. 51, 1771-1774 (also code_aster validation test SDLL09, via REFERENCES.md):
+# J. Acoust. Soc. Am. 51, 1771-1774 (also code_aster validation test SDLL09):
 # depth ratio h0/h1 = 4, width ratio b0/b1 = 4 or 5, clamped at the large end,
 # f_i = lambda_i h1 / (2 pi L^2) sqrt(E / (12 rho)).
 MABIE_ROGERS = {

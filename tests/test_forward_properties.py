@@ -6,7 +6,7 @@ lowers, adding stiffness raises, enlarging the trial space lowers every ordered 
 Courant, R. & Hilbert, D., 1953, *Methods of Mathematical Physics*, vol. 1, ch. VI), the
 dimensional scaling of the Euler-Bernoulli beam (f ~ h / L^2 sqrt(E / rho), independent of the
 width), and trade facts (a central undercut flattens the fundamental; drilling the suspension
-holes flattens a bar: REFERENCES.md, "Mallet-instrument practice", trade).
+holes flattens a bar: common practice, no source).
 """
 
 import dataclasses
@@ -24,9 +24,16 @@ from tonewright.forward import (
     Support,
     constant,
     families_of,
+    hole_centre_height,
     solve,
 )
-from tonewright.forward.modal import assemble_family, discretise, lowest_modes, section_coefficients
+from tonewright.forward.modal import (
+    assemble_family,
+    discretise,
+    hole_data,
+    lowest_modes,
+    section_coefficients,
+)
 
 from tonewright.partfile import parse_part
 
@@ -201,7 +208,8 @@ def _lam_pair(part_a, part_b, family="bending", count=3, theory="timoshenko"):
     theory=st.sampled_from(["timoshenko", "euler-bernoulli"]),
 )
 def test_small_central_undercut_lowers_the_fundamental(depth, half, theory):
-    # Trade (REFERENCES.md): removing material at the centre lowers the fundamental.
+    # Trade (common practice, no source): removing material at the centre lowers the
+    # fundamental.
     L, h = 0.4, 0.022
     wood = Material(E=24e9, G=1.512e9, rho=1010.0, nu=0.476)  # library honduras-rosewood
     blank = Bar(L, constant(0.055), constant(h), wood)
@@ -217,8 +225,8 @@ def test_small_central_undercut_lowers_the_fundamental(depth, half, theory):
     offset=st.floats(-0.003, 0.003),
 )
 def test_suspension_hole_at_the_node_flattens_the_bar(diameter, offset):
-    # Trade (REFERENCES.md): drilling the suspension holes flattens a bar. The hole goes at the
-    # computed first-mode node, at or near mid-thickness.
+    # Trade (common practice, no source): drilling the suspension holes flattens a bar. The
+    # hole goes at the computed first-mode node, at or near mid-thickness.
     L, h = 0.4, 0.022
     wood = Material(E=24e9, G=1.512e9, rho=1010.0, nu=0.476)
     blank = Bar(L, constant(0.055), constant(h), wood)
@@ -226,6 +234,19 @@ def test_suspension_hole_at_the_node_flattens_the_bar(diameter, offset):
     drilled = dataclasses.replace(blank, holes=(Hole(node, diameter, h / 2 + offset),))
     lam_drilled, lam_blank = _lam_pair(drilled, blank)
     assert lam_drilled[0] < lam_blank[0]
+
+
+def test_hole_without_height_sits_at_local_mid_thickness():
+    # The project's convention (no source): a hole given no height is drilled at half the local
+    # thickness; a given height is kept as it is.
+    assert hole_centre_height(None, 0.018) == 0.009
+    assert hole_centre_height(0.004, 0.018) == 0.004
+    wood = Material(E=12e9, G=0.8e9, rho=700.0)
+    taper = PiecewiseLinear((0.0, 0.4), (0.024, 0.016))
+    bar = Bar(0.4, constant(0.05), taper, wood, holes=(Hole(0.1, 0.004), Hole(0.3, 0.004, 0.005)))
+    chord, z = hole_data(bar, np.array([0.1, 0.3]))
+    assert z == pytest.approx([0.5 * float(taper(np.array([0.1]))[0]), 0.005], rel=1e-15)
+    assert chord == pytest.approx([0.004, 0.004], rel=1e-12)
 
 
 @given(bar=bars(holes=False), at=st.floats(0.0, 1.0), grams=st.floats(0.1, 500.0))

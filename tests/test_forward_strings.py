@@ -7,7 +7,8 @@ from tonewright.forward import String, Support, constant, solve
 
 REL_F = 6e-6  # the solves' 0.01-cent bound, 2^(0.01/1200) - 1 = 5.8e-6
 
-# Steel music wire (structural steel values, REFERENCES.md): E = 200 GPa, rho = 7850 kg/m^3.
+# Steel music wire (structural steel design values, ANSI/AISC 360-16, from memory): E = 200 GPa,
+# rho = 7850 kg/m^3.
 E_STEEL, RHO_STEEL = 200e9, 7850.0
 
 
@@ -25,7 +26,8 @@ def _f0(s):
 
 
 def test_ideal_string_harmonic_series():
-    # f_n = n / (2L) sqrt(T / mu) (REFERENCES.md: the harmonic series).
+    # f_n = n / (2L) sqrt(T / mu), the harmonic series of the ideal string (Fletcher, N.H. &
+    # Rossing, T.D. (1998), The Physics of Musical Instruments, 2nd ed., ch. 2; from memory).
     s = _ideal()
     f = [m.frequency_hz for m in solve(s, {"transverse": 8}).modes]
     assert f == pytest.approx(np.arange(1, 9) * _f0(s), rel=REL_F)
@@ -63,7 +65,7 @@ def _stiff(L=0.5, T=600.0, d=1e-3, supports=None):
 
 def _fletcher_B(s, d=1e-3):
     # B = pi^3 E d^4 / (64 T L^2): Fletcher, H. (1964), "Normal vibration frequencies of a stiff
-    # piano string", J. Acoust. Soc. Am. 36, 203-209 (REFERENCES.md; memory for the citation).
+    # piano string", J. Acoust. Soc. Am. 36, 203-209 (citation details from memory).
     return np.pi**3 * E_STEEL * d**4 / (64 * s.tension * s.length**2)
 
 
@@ -85,7 +87,7 @@ def test_stiff_string_pinned_ends_fletcher():
 
 def test_stiff_string_young_inharmonicity():
     # Young, R.W. (1952), "Inharmonicity of plain wire piano strings", J. Acoust. Soc. Am. 24(3)
-    # (REFERENCES.md, memory for details): cents = 3.4e13 n^2 d^2 / (f^2 l^4), d and l in cm,
+    # (details from memory): cents = 3.4e13 n^2 d^2 / (f^2 l^4), d and l in cm,
     # steel, f the fundamental, cents measured from n F0. The constant has 2 digits (+-1.5 %) and
     # the formula is the small-B limit (B n^2 / 2 < 0.3 % here): tolerance 2 %.
     s = _stiff()
@@ -146,7 +148,7 @@ def test_stiff_string_clamped_ends():
 
 @pytest.mark.parametrize("alpha", [0.1, 1.0, 10.0])
 def test_point_mass_at_the_centre(alpha):
-    # A point mass M = alpha mu L at the centre (REFERENCES.md, derived): symmetric modes obey
+    # A point mass M = alpha mu L at the centre (derived): symmetric modes obey
     # cot x = alpha x with x = k L / 2, so f / F0 = 2 x / pi; antisymmetric modes (a node at the
     # mass) are unchanged at 2 F0, 4 F0.
     s = _ideal()
@@ -164,5 +166,5 @@ def test_point_mass_at_the_centre(alpha):
     expected = np.sort([2 * x1 / np.pi, 2.0, 2 * x2 / np.pi, 4.0])
     assert ratios == pytest.approx(expected, rel=REL_F)
     if alpha == 1.0:
-        # f1 / f1_unloaded = 0.547705 (REFERENCES.md, 6 printed digits)
+        # f1 / f1_unloaded = 0.547705 (derived from cot x = x, 6 printed digits)
         assert ratios[0] == pytest.approx(0.547705, abs=5e-7 + REL_F)

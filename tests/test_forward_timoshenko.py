@@ -42,7 +42,7 @@ def _section(bar):
 
 def _robert_omega(n, j, g):
     """Robert, G. (1996), Analytical solutions in structural dynamics (as in the code_aster
-    validation manual V2.04.302; REFERENCES.md): pinned-pinned Timoshenko beam,
+    validation manual V2.04.302): pinned-pinned Timoshenko beam,
     Omega = rho A L^4 w^2 / (E I), j = I / (A L^2), g = E I / (kappa A G L^2), lambda = n pi.
     The printed form cancels about log10(1 / (g j lambda^4)) digits: 7 at h/L = 0.02, so it is
     used here for h/L >= 0.02 only (the convergence tests use a rationalised form)."""
@@ -112,7 +112,7 @@ def exact_frequencies(bar, ends, f_max, count, s=None):
 
 def test_robert_ratios_square_section_h_over_L_01():
     # Ratios to Euler-Bernoulli, n = 1..4, square section, h/L = 0.1, nu = 0.3, Cowper's kappa:
-    # 0.98381, 0.94045, 0.88130, 0.81679 (REFERENCES.md, derived from Robert's formula);
+    # 0.98381, 0.94045, 0.88130, 0.81679 (derived from Robert's formula);
     # 5 printed digits -> +-5e-6, plus the 5.8e-6 solve bound.
     bar = _pinned_bar(0.1)
     f = np.array([m.frequency_hz for m in solve(bar, {"bending": 4}).family("bending")])
@@ -124,7 +124,7 @@ def test_robert_ratios_square_section_h_over_L_01():
 
 @pytest.mark.parametrize("h_over_L", [0.02, 0.05, 0.1, 0.2])
 def test_robert_formula_several_modes(h_over_L):
-    # Robert (1996) closed form, n = 1..6 (REFERENCES.md); tolerance: the solve's bound.
+    # Robert (1996) closed form, n = 1..6; tolerance: the solve's bound.
     bar = _pinned_bar(h_over_L, L=0.7)
     f = np.array([m.frequency_hz for m in solve(bar, {"bending": 6}).family("bending")])
     assert f == pytest.approx(_robert_f(bar, np.arange(1, 7)), rel=REL_F)
@@ -145,8 +145,8 @@ def test_transfer_matrix_reference_reproduces_robert():
     [
         # thick steel bar, h/L = 0.1
         ("steel", 0.5, 0.04, 0.05, _steel()),
-        # a marimba-like wood blank: h/L = 0.05, E/G = 16 (REFERENCES.md: woods have E_L/G_LT
-        # of 10 to 16; sugar maple G_LT/E_L = 0.063, Wood Handbook FPL-GTR-190, Table 5-1)
+        # a marimba-like wood blank: h/L = 0.05, E/G = 16 (woods have E_L/G_LT
+        # of 10 to 16, e.g. sugar maple G_LT/E_L = 0.063, Wood Handbook FPL-GTR-190, Table 5-1)
         ("wood", 0.4, 0.055, 0.02, Material(E=12.6e9, G=12.6e9 / 16, rho=705.6, nu=0.476)),
     ],
 )
@@ -196,11 +196,11 @@ def test_thin_stiff_in_shear_free_free_beam_is_euler_bernoulli():
 
 @pytest.mark.parametrize("E_over_G", [10.0, 13.0, 16.0])
 def test_shear_lowers_third_partial_of_marimba_blank(E_over_G):
-    # REFERENCES.md (trade and derived): marimba blanks have h/L near 0.05, woods E_L/G_LT of
-    # 10-16, and shear lowers the third free-free partial "by roughly 12-15 %" against
-    # Euler-Bernoulli. The model gives 11.4 % at E/G = 10 and 16.0 % at E/G = 16, so the rough
-    # band is checked as 11-16.5 % over the range and 12-15 % at its middle; the fundamental
-    # moves far less (a model without shear cannot tune the third partial).
+    # Trade and derived (common practice, no single source): marimba blanks have h/L near 0.05,
+    # woods E_L/G_LT of 10-16, and shear lowers the third free-free partial by roughly 12-15 %
+    # against Euler-Bernoulli. The model gives 11.4 % at E/G = 10 and 16.0 % at E/G = 16, so
+    # the rough band is checked as 11-16.5 % over the range and 12-15 % at its middle; the
+    # fundamental moves far less (a model without shear cannot tune the third partial).
     E = 12.6e9  # sugar maple E_L, Wood Handbook FPL-GTR-190 (2010), Table 5-3a
     wood = Material(E=E, G=E / E_over_G, rho=705.6, nu=0.476)
     bar = Bar(0.4, constant(0.055), constant(0.02), wood)
@@ -218,7 +218,7 @@ def test_shear_lowers_third_partial_of_marimba_blank(E_over_G):
 
 
 def test_cowper_hollow_circle_limits():
-    # Cowper (1966), J. Appl. Mech. 33, 335-340 (REFERENCES.md): the hollow-circle coefficient
+    # Cowper (1966), J. Appl. Mech. 33, 335-340 (from memory): the hollow-circle coefficient
     # tends to the solid circle's 6(1+nu)/(7+6nu) as m = Di/Do -> 0 and to the thin-walled
     # tube's 2(1+nu)/(4+3nu) (memory) as m -> 1. Exact limits of the formula: 1e-12.
     for nu in (0.0, 0.3, 0.45):
@@ -229,7 +229,7 @@ def test_cowper_hollow_circle_limits():
 
 
 def test_free_free_chime_against_exact_characteristic_equation():
-    # A brass chime (Do 25.4 mm, wall 1.6 mm, 1.2 m; C26000, REFERENCES.md). Section by the
+    # A brass chime (Do 25.4 mm, wall 1.6 mm, 1.2 m; C26000, as in materials.toml). Section by the
     # tube formulas I = pi (Do^4 - Di^4)/64, A = pi (Do^2 - Di^2)/4 and Cowper's hollow-circle
     # kappa; the exact transfer-matrix frequencies must match (the solve's bound).
     E, nu, rho = 110e9, 0.33, 8530.0

@@ -6,16 +6,18 @@ from tonewright.forward import Bar, Material, Support, Tube, constant, solve
 
 REL_F = 6e-6  # the solves' 0.01-cent bound, 2^(0.01/1200) - 1 = 5.8e-6
 
-# Aluminium 6061-T6, Aluminum Association typical values (REFERENCES.md).
+# Aluminium 6061-T6, Aluminum Association typical values (Aluminum Standards and Data; from
+# memory).
 ALUMINIUM = Material(E=68.9e9, G=26e9, rho=2700.0, nu=0.33)
-# Cartridge brass C26000 (REFERENCES.md: E 110-117 GPa, nu 0.31-0.34); isotropic G.
+# Cartridge brass C26000 (E 110-117 GPa, nu 0.31-0.34; Copper Development Association data,
+# from memory); isotropic G.
 BRASS = Material(E=110e9, G=110e9 / (2 * 1.33), rho=8530.0, nu=0.33)
 
 
 @pytest.mark.parametrize(
     ("b_over_h", "k_table"),
     # Timoshenko & Goodier, Theory of Elasticity, torsion of rectangular bars, J = k b h^3
-    # (REFERENCES.md), printed to 3 digits.
+    # printed to 3 digits.
     [(1.0, 0.141), (2.0, 0.229), (2.5, 0.249), (4.0, 0.281)],
 )
 def test_torsion_of_rectangular_bar(b_over_h, k_table):
@@ -24,7 +26,8 @@ def test_torsion_of_rectangular_bar(b_over_h, k_table):
     bar = Bar(L, constant(b), constant(h), ALUMINIUM)
     modes = solve(bar, {"torsion": 3}).family("torsion")
     # Uniform free-free torsion: f_n = (n / 2L) sqrt(G J / (rho I_p)), I_p = b h (b^2 + h^2)/12
-    # (REFERENCES.md). Solve for the k the model implies and compare with the table:
+    # (Saint-Venant torsion, standard). Solve for the k the model implies and compare with the
+    # table:
     # half a unit in the 3rd digit, 5e-4 (the model's J is the series, converged far beyond).
     Ip = b * h * (b * b + h * h) / 12
     for m in modes:
@@ -72,20 +75,20 @@ def _chime(L=1.2, Do=0.0254, wall=0.0016):
 
 def test_tube_bending_uses_I_not_polar_J():
     # A free tube follows the free-free beam with I = pi (Do^4 - Di^4)/64 and
-    # A = pi (Do^2 - Di^2)/4 (REFERENCES.md); the frequent mistake uses J = 2 I, which puts
-    # every partial sqrt(2) (600 cents) sharp.
+    # A = pi (Do^2 - Di^2)/4 (standard section formulas); the frequent mistake uses J = 2 I,
+    # which puts every partial sqrt(2) (600 cents) sharp.
     L, Do, wall = 1.2, 0.0254, 0.0016
     Di = Do - 2 * wall
     Iy = np.pi * (Do**4 - Di**4) / 64
     A = np.pi * (Do**2 - Di**2) / 4
-    beta_l = np.array([4.73004074, 7.85320462, 10.99560784])  # Thomson, App. D (REFERENCES.md)
+    beta_l = np.array([4.73004074, 7.85320462, 10.99560784])  # Thomson, App. D, Table D.1
     f_right = beta_l**2 / (2 * np.pi * L**2) * np.sqrt(BRASS.E * Iy / (BRASS.rho * A))
     f_wrong = np.sqrt(2) * f_right
     res = solve(_chime(L, Do, wall), {"bending": 3}, theory="euler-bernoulli")
     f = np.array([m.frequency_hz for m in res.family("bending")])
     assert f == pytest.approx(f_right, rel=REL_F)
     assert np.all(np.abs(1200 * np.log2(f / f_wrong)) > 599)
-    # Chimes hang at the first mode's node, 0.224 L (trade; 0.22416 L derived, REFERENCES.md).
+    # Chimes hang at the first mode's node, 0.224 L (trade; 0.22416 L derived from the exact shape).
     nodes = np.array(res.family("bending")[0].nodes_m) / L
     assert nodes == pytest.approx([0.22416, 1 - 0.22416], abs=6e-6)
 

@@ -7,6 +7,7 @@ import numpy as np
 import pytest
 from pydantic import ValidationError
 from tonewright.forward.geometry import Material
+from tonewright.forward.orthotropic import compliance_matrix, stiffness_matrix
 
 from tonewright.errors import InputError
 from tonewright.materials import (
@@ -22,9 +23,9 @@ GPA = 1e9
 WOODS = ["sugar-maple", "honduras-rosewood", "african-padauk"]
 METALS = ["aluminium-6061-t6", "aluminium-6063-t5", "brass-c26000", "structural-steel"]
 
-# Wood Handbook FPL-GTR-190 (2010) ch. 5, Table 5-1 (elastic ratios) and Table 5-2 (Poisson),
-# sugar maple. G_LR/E_L, G_LT/E_L, nu_LR, nu_LT via REFERENCES.md; E_T/E_L, E_R/E_L, nu_RT
-# from memory; G_RT/E_L of yellow birch (none given for sugar maple; from memory).
+# Forest Products Laboratory (2010), Wood Handbook, FPL-GTR-190, ch. 5, Table 5-1 (elastic
+# ratios) and Table 5-2 (Poisson ratios), sugar maple (table numbers, E_T/E_L, E_R/E_L and nu_RT
+# from memory); G_RT/E_L of yellow birch (none given for sugar maple; from memory).
 MAPLE_RATIOS = {"E_T": 0.065, "E_R": 0.132, "G_LR": 0.111, "G_LT": 0.063, "G_RT": 0.017}
 MAPLE_POISSON = {"nu_LR": 0.424, "nu_LT": 0.476, "nu_RT": 0.774}
 
@@ -36,8 +37,9 @@ def test_library_has_the_required_materials():
 
 def test_sugar_maple_matches_wood_handbook():
     maple = load_material("sugar-maple")
-    # Wood Handbook Table 5-3a: E_L 12.6 GPa at 12 % moisture (via REFERENCES.md); values are
-    # stored in SI, so only float rounding may differ.
+    # Forest Products Laboratory (2010), Wood Handbook, FPL-GTR-190, ch. 5, Table 5-3a (table
+    # number from memory): E_L 12.6 GPa at 12 % moisture; values are stored in SI, so only float
+    # rounding may differ.
     assert maple.E == pytest.approx(12.6 * GPA, rel=1e-12)
     # Specific gravity 0.63 (oven-dry weight, volume at 12 % MC) -> density at 12 % MC by
     # rho = G_m * 1000 * (1 + 0.12) (Wood Handbook ch. 4, from memory).
@@ -59,7 +61,8 @@ def test_woods_use_handbook_ratios_and_beam_takes_L_and_LT(name):
         # Rosewood and padauk have no Table 5-1 row: sugar maple's ratios are the stand-in.
         assert getattr(ortho, key) / ortho.E_L == pytest.approx(ratio, rel=1e-3), key
     assert (spec.E, spec.G, spec.nu) == (ortho.E_L, ortho.G_LT, ortho.nu_LT)
-    # REFERENCES.md: woods have E_L/G_LT of 10 to 16 (shear matters for the third partial).
+    # Woods have E_L/G_LT of 10 to 16 (derived from the Wood Handbook, FPL-GTR-190, Table 5-1
+    # ratios G_LT/E_L; shear matters for the third partial).
     assert 10.0 <= spec.E / spec.G <= 16.0
     # Wood's pitch falls about 1 cent per degree C when warmed (common practice, no source).
     assert spec.temp_coeff_cents_per_K == pytest.approx(-1.0)
@@ -70,15 +73,18 @@ def test_wood_compliance_is_symmetric_positive_definite(name):
     # Strain energy must be positive: the orthotropic compliance is symmetric positive definite
     # (Lekhnitskii, Theory of Elasticity of an Anisotropic Body, 1963; Bodig & Jayne, Mechanics
     # of Wood and Wood Composites, 1982 - from memory).
-    S = load_material(name).orthotropic.compliance_matrix()
+    solid = load_material(name).to_solid()
+    S = compliance_matrix(solid)
     np.testing.assert_array_equal(S, S.T)
     assert np.linalg.eigvalsh(S).min() > 0
-    C = load_material(name).orthotropic.stiffness_matrix()
+    C = stiffness_matrix(solid)
     np.testing.assert_allclose(C @ S, np.eye(6), atol=1e-9)
 
 
 def test_tropical_woods_within_usda_ranges():
-    # USDA FPL tropical wood fact sheets (Chudnoff), via REFERENCES.md.
+    # USDA Forest Products Laboratory, Wood Technical Fact Sheets for Pterocarpus soyauxii and
+    # Dalbergia stevensonii, compiled from Chudnoff, M. (1984), Tropical Timbers of the World,
+    # USDA Agriculture Handbook 607: air-dry 42-51 and 58-68 pcf, padauk MOE 1560-1750 kpsi.
     padauk = load_material("african-padauk")
     assert 673 <= padauk.rho <= 817
     assert 10.8 * GPA <= padauk.E <= 12.1 * GPA
@@ -90,7 +96,7 @@ def test_tropical_woods_within_usda_ranges():
 
 @pytest.mark.parametrize("name", ["aluminium-6061-t6", "aluminium-6063-t5"])
 def test_aluminium_typical_values(name):
-    # Aluminum Association typical values (via REFERENCES.md).
+    # Aluminum Association, Aluminum Standards and Data, typical properties (from memory).
     al = load_material(name)
     assert (al.rho, al.E, al.G, al.nu) == (2700.0, 68.9 * GPA, 26.0 * GPA, 0.33)
     # Handbook G agrees with isotropic elasticity, E / (2 (1 + nu)) = 25.9 GPa, to within 1 %.
@@ -98,14 +104,17 @@ def test_aluminium_typical_values(name):
 
 
 def test_brass_steel_composite_values():
-    brass = load_material("brass-c26000")  # CDA, via REFERENCES.md: 110-117 GPa, nu .31-.34
+    # Copper Development Association, C26000 data sheet: 110 GPa (from memory); reported
+    # 110-117 GPa and nu 0.31-0.34 for alpha brass (from memory).
+    brass = load_material("brass-c26000")
     assert brass.rho == 8530.0
     assert 110 * GPA <= brass.E <= 117 * GPA and 0.31 <= brass.nu <= 0.34
-    steel = load_material("structural-steel")  # via REFERENCES.md
+    steel = load_material("structural-steel")  # AISC 360-16: E = 29,000 ksi (from memory)
     assert (steel.E, steel.nu, steel.rho) == (200 * GPA, 0.29, 7850.0)
     for metal in (brass, steel):  # no G listed: isotropic rule
         assert metal.G == pytest.approx(isotropic_shear_modulus(metal.E, metal.nu), rel=1e-12)
-    gfrp = load_material("glass-fibre-composite")  # REFERENCES.md (memory, low confidence)
+    # Unidirectional E-glass composites (from memory, low confidence; see materials.toml).
+    gfrp = load_material("glass-fibre-composite")
     assert 30 * GPA <= gfrp.E <= 45 * GPA and 1800 <= gfrp.rho <= 2000
     # A unidirectional composite is far from isotropic: its G must not be E / (2 (1 + nu)).
     assert gfrp.E / gfrp.G > 5.0
@@ -151,6 +160,44 @@ def test_every_value_has_a_source(name):
     assert required <= set(spec.sources)
     assert all(len(text) > 10 for text in spec.sources.values())
     assert 0 < spec.loss_factor < 0.05
+    for key, text in spec.sources.items():
+        # A source is the publication itself: not a notes file of this project, not a path.
+        assert not _cites_notes_or_path(text), (key, text)
+
+
+# A path such as /home/..., ~/notes or C:\docs, standing alone or after a bracket or quote.
+_ABSOLUTE_PATH = re.compile(r"""(?:^|[\s("'])(?:/|~/|[A-Za-z]:[\\/])\w""")
+
+
+def _cites_notes_or_path(text: str) -> bool:
+    """A source that points at a notes file (REFERENCES...) or a path instead of a publication."""
+    return "REFERENCES" in text.upper() or _ABSOLUTE_PATH.search(text) is not None
+
+
+@pytest.mark.parametrize(
+    "text",
+    [
+        "Wood Handbook, via REFERENCES.md",
+        "see references.md",
+        "E_L 12.6 GPa (via /work/notes/values.md)",
+        "from ~/notes/wood.txt",
+        "C:\\data\\wood.xlsx",
+    ],
+)
+def test_source_rule_refuses_notes_files_and_paths(text):
+    assert _cites_notes_or_path(text)
+
+
+def test_source_rule_accepts_ratios_and_units():
+    for text in ("E_L * 0.111, G_LR/E_L", "(1200/ln 2) * (dlnE/dT + alpha) / 2", "kg/m^3"):
+        assert not _cites_notes_or_path(text)
+
+
+def test_library_file_names_no_notes_file():
+    from importlib import resources
+
+    text = resources.files("tonewright").joinpath("data", "materials.toml").read_text("utf-8")
+    assert not _cites_notes_or_path(text)
 
 
 def test_to_beam_gives_forward_material_in_si():

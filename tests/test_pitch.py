@@ -8,6 +8,7 @@ from hypothesis import assume, given, settings
 from hypothesis import strategies as st
 from scipy.optimize import brentq
 from tonewright.acoustics.pitch import (
+    CENTS_PER_LN,
     cents,
     cents_to_ratio,
     critical_bandwidth_hz,
@@ -154,6 +155,15 @@ def test_cents_vectorised_and_inverse():
     np.testing.assert_allclose(ratio_to_cents(cents_to_ratio(c)), c, atol=1e-9)
 
 
+def test_cents_per_natural_log():
+    # 1200 log2 r = (1200 / ln 2) ln r (definition of the cent, Ellis 1885): 1731.234 cents per
+    # unit of ln f, the factor that turns d ln f into cents.
+    assert CENTS_PER_LN == pytest.approx(1731.2340490667, abs=1e-9)
+    assert CENTS_PER_LN * math.log(2.0) == pytest.approx(1200.0, abs=1e-12)
+    f = np.array([261.63, 523.25, 1046.5])
+    np.testing.assert_allclose(CENTS_PER_LN * np.log(f / 440.0), cents(f, 440.0), atol=1e-9)
+
+
 # --- hearing bandwidths ------------------------------------------------------------------------
 
 
@@ -214,7 +224,7 @@ def _free_free_beta(n: int) -> float:
 
 
 def test_free_free_roots_match_the_handbook():
-    # Thomson, Theory of Vibration with Applications, App. D (via REFERENCES.md), and the
+    # Thomson, Theory of Vibration with Applications, App. D, Table D.1, and the
     # asymptote (2n+1) pi/2 for n = 6 (exact to about 1e-8 there: cosh x ~ 1e8).
     table = [4.73004074, 7.85320462, 10.99560784, 14.13716549, 17.27875966]
     for n, beta in enumerate(table, start=1):

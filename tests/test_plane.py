@@ -23,10 +23,11 @@ from test_solid import (
     cowper_rectangle,
     timoshenko_free_free,
 )
+from tonewright.acoustics.pitch import cents
 from tonewright.forward.geometry import PiecewiseLinear, constant
 from tonewright.forward.orthotropic import bar_axes, plane_stress_xz
 from tonewright.forward.plane import PlaneMesh, assemble_plane, plane_modes, profile_grid
-from tonewright.forward.solid import SolidMesh, cents, solid_modes
+from tonewright.forward.solid import SolidMesh, solid_modes
 
 
 def _plate_bound_cents(material) -> float:
@@ -152,7 +153,7 @@ def test_central_undercut_lowers_the_fundamental_and_modes_are_named():
     blank = plane_modes(L, B, T0, constant(T0), WOOD, 6, mesh=PlaneMesh(32, 4))
     cut = PiecewiseLinear([0.0, 0.15, 0.2, 0.25, 0.4], [T0, T0, 0.8 * T0, T0, T0])
     cut_bar = plane_modes(L, B, T0, cut, WOOD, 6, mesh=PlaneMesh(32, 4))
-    assert cut_bar.f_hz[0] < blank.f_hz[0]  # trade fact (REFERENCES.md)
+    assert cut_bar.f_hz[0] < blank.f_hz[0]  # trade fact (common practice, no source)
     bending = [m for m in blank.modes if m.family == "bending"]
     assert [m.order for m in bending] == list(range(1, len(bending) + 1))
     assert all(m.nodes == m.order + 1 for m in bending)  # free-free bending n: n + 1 nodes

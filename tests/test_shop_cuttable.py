@@ -7,10 +7,10 @@ import io
 
 import numpy as np
 import pytest
+from shop_demo import demo_part
 
 from tonewright.errors import InputError
 from tonewright.shop.cuttable import cut_table_csv, cut_table_rows
-from tonewright.shop.part import demo_part
 
 
 def read(text: str) -> list[dict[str, str]]:

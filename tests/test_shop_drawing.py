@@ -8,10 +8,12 @@ import xml.etree.ElementTree as ET
 
 import numpy as np
 import pytest
+from shop_demo import demo_part
+from tonewright.acoustics.pitch import cents
 
 from tonewright.errors import InputError
-from tonewright.shop.drawing import cents, drawing_pdf, drawing_scale, drawing_svg
-from tonewright.shop.part import ShopPart, demo_part
+from tonewright.shop.drawing import drawing_pdf, drawing_scale, drawing_svg
+from tonewright.shop.part import ShopPart
 
 SVG = "{http://www.w3.org/2000/svg}"
 

@@ -7,9 +7,9 @@ import io
 import ezdxf
 import numpy as np
 import pytest
+from shop_demo import demo_part
 
 from tonewright.shop.dxf import LAYERS, dxf_text
-from tonewright.shop.part import demo_part
 
 
 @pytest.fixture(scope="module")

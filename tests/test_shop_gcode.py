@@ -15,11 +15,12 @@ import numpy as np
 import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
+from shop_demo import demo_part
 
 from tonewright.errors import InputError
 from tonewright.shop import toolpath as tp
 from tonewright.shop.gcode import Cutter, GcodeOptions, plan_undercut, undercut_gcode
-from tonewright.shop.part import ShopPart, demo_part
+from tonewright.shop.part import ShopPart
 
 # --- a small RS-274 reader ------------------------------------------------------------------
 

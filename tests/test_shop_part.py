@@ -6,9 +6,10 @@ import dataclasses
 
 import numpy as np
 import pytest
+from shop_demo import demo_part
 
 from tonewright.errors import InputError
-from tonewright.shop.part import ShopPart, demo_part
+from tonewright.shop.part import ShopPart
 
 GOOD = dict(
     title="test bar",

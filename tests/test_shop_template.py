@@ -14,9 +14,10 @@ import xml.etree.ElementTree as ET
 
 import numpy as np
 import pytest
+from shop_demo import demo_part
 
 from tonewright.errors import InputError
-from tonewright.shop.part import ShopPart, demo_part
+from tonewright.shop.part import ShopPart
 from tonewright.shop.template import template_layout, template_pdf, template_svgs
 
 SVG = "{http://www.w3.org/2000/svg}"

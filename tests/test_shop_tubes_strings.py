@@ -19,7 +19,6 @@ from tonewright.shop.tubes_strings import (
     uniform_node_fraction,
     winding_schedule,
     winding_schedule_csv,
-    wrap_linear_density,
 )
 
 # Invented demo chimes (aluminium-like tubes from an imagined workshop set).
@@ -37,7 +36,7 @@ def rows(text: str) -> list[dict[str, str]]:
 
 
 def test_uniform_node_fraction():
-    # Free-free beam mode-1 node at 0.22416 L (REFERENCES.md: derived from the exact mode
+    # Free-free beam mode-1 node at 0.22416 L (derived from the exact mode
     # shape with beta L = 4.73004074, Thomson, Theory of Vibration, App. D, Table D.1).
     assert uniform_node_fraction() == pytest.approx(0.22416, abs=5e-6)
     # The root used satisfies cos x cosh x = 1 (to the 8 digits quoted).
@@ -95,6 +94,16 @@ def test_tube_list_validation():
 
 
 # --- strings --------------------------------------------------------------------------------
+def wrap_linear_density(
+    wrap_diameter_m: float, wrap_density_kg_m3: float, core_diameter_m: float, pitch_m: float
+) -> float:
+    """Added linear density (kg/m) of a single-layer helical wrap at ``pitch_m``: the forward
+    relation the winding schedule inverts (wire mass per turn over the pitch)."""
+    D = core_diameter_m + wrap_diameter_m
+    mu_wire = wrap_density_kg_m3 * math.pi * wrap_diameter_m**2 / 4
+    return mu_wire * math.hypot(math.pi * D, pitch_m) / pitch_m
+
+
 def test_helix_length_against_numerical_arc_length():
     # A wrap turn on a helix of diameter D and pitch p: the formula's length per turn,
     # sqrt((pi D)^2 + p^2), against arc length integrated numerically along

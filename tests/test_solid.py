@@ -15,10 +15,13 @@ from hypothesis import given
 from hypothesis import strategies as st
 from scipy.linalg import expm
 from scipy.optimize import brentq
+from tonewright.acoustics.pitch import cents
 from tonewright.forward.geometry import PiecewiseLinear, constant
 from tonewright.forward.orthotropic import (
     Orthotropic,
+    OrthotropicConstants,
     bar_axes,
+    compliance_lrt,
     compliance_matrix,
     isotropic,
     plane_stress_xz,
@@ -28,7 +31,6 @@ from tonewright.forward.solid import (
     SolidMesh,
     _mirror_grid,
     assemble_solid,
-    cents,
     graded_stations,
     node_grid,
     reentrant_kinks,
@@ -37,7 +39,7 @@ from tonewright.forward.solid import (
 )
 
 # Invented demo material shaped like Wood Handbook ratios (E_L/G_LT ~ 13); aluminium 6061-T6
-# typical values (Aluminum Association, via REFERENCES.md).
+# typical values (Aluminum Association, Aluminum Standards and Data; from memory).
 WOOD = Orthotropic(20e9, 2.2e9, 1.2e9, 1.6e9, 1.5e9, 0.4e9, 0.37, 0.45, 0.6, 1000.0)
 AL_E, AL_NU, AL_RHO = 68.9e9, 0.33, 2700.0
 ALUMINIUM = isotropic(AL_E, AL_NU, AL_RHO)
@@ -47,7 +49,7 @@ UNDERCUT = PiecewiseLinear(STATIONS_MM[:, 0] / 1000, STATIONS_MM[:, 1] / 1000)
 L, B, T0 = 0.4, 0.055, 0.022
 
 # Euler-Bernoulli free-free beta_n L (Thomson, Theory of Vibration with Applications, App. D,
-# Tables D.1-D.2, further digits derived; REFERENCES.md)
+# Tables D.1-D.2, further digits derived)
 EB_FREE = np.array([4.73004074, 7.85320462, 10.99560784, 14.13716549, 17.27875966])
 
 
@@ -98,10 +100,12 @@ def test_oracle_reproduces_published_values():
     f = timoshenko_free_free(1.0, EI, 1e6 * E * b * b, rhoA, 0.0, 5)
     beta_L = np.sqrt(2 * np.pi * f / np.sqrt(EI / rhoA))
     np.testing.assert_allclose(beta_L, EB_FREE, rtol=1e-7)  # root-finding tolerance
-    # pinned-pinned worked example (REFERENCES.md): 1 m, 50 x 50 mm steel
+    # pinned-pinned worked example (closed form f_n = (n pi)^2 / (2 pi L^2) sqrt(EI / rhoA)):
+    # 1 m, 50 x 50 mm steel
     f = timoshenko_free_free(1.0, EI, 1e6 * E * b * b, rhoA, 0.0, 3, ends="pinned")
     np.testing.assert_allclose(f, [114.44, 457.76, 1030.0], rtol=5e-5)  # 5 digits quoted
-    # Robert (1996) closed form as in REFERENCES.md: square section, h/L = 0.1, nu = 0.3
+    # Robert, G. (1996), Analytical solutions in structural dynamics, closed form: square
+    # section, h/L = 0.1, nu = 0.3
     nu, h = 0.3, 0.1
     G = E / (2 * (1 + nu))
     A, Iy = h * h, h**4 / 12
@@ -190,6 +194,26 @@ def test_valid_materials_give_spd_stiffness(E, G, s):
 def test_material_validation(kwargs, match):
     with pytest.raises(ValueError, match=match):
         Orthotropic(**{**WOOD.__dict__, **kwargs})
+
+
+def test_constants_alone_and_with_density():
+    # One dataclass holds the nine constants; the models' material adds rho and the sawing.
+    nine = {k: v for k, v in WOOD.__dict__.items() if k not in ("rho", "thickness_axis")}
+    constants = OrthotropicConstants(**nine)
+    assert Orthotropic.from_constants(constants, WOOD.rho) == WOOD
+    flat = Orthotropic.from_constants(constants, WOOD.rho, "R")
+    assert flat.thickness_axis == "R" and isinstance(flat, OrthotropicConstants)
+    np.testing.assert_array_equal(compliance_lrt(constants), compliance_lrt(WOOD))
+    # scaling keeps the ratios (and, on the models' material, rho and the sawing)
+    stiff = WOOD.scaled(2.0, 3.0)
+    assert (stiff.E_T / stiff.E_L, stiff.G_RT / stiff.G_LT) == pytest.approx(
+        (WOOD.E_T / WOOD.E_L, WOOD.G_RT / WOOD.G_LT), rel=1e-15
+    )
+    assert (stiff.E_L, stiff.G_LR, stiff.rho) == (2.0 * WOOD.E_L, 3.0 * WOOD.G_LR, WOOD.rho)
+    with pytest.raises(ValueError, match="Poisson"):
+        OrthotropicConstants(**{**nine, "nu_LR": 4.0})  # beyond sqrt(E_L / E_R) = 3.0
+    with pytest.raises(ValueError, match="G_LT"):
+        OrthotropicConstants(**{**nine, "G_LT": -1.0})
 
 
 def test_isotropic_validation():
@@ -373,7 +397,8 @@ def test_scaling_laws():
 
 
 def test_central_undercut_lowers_the_fundamental():
-    # trade fact (REFERENCES.md): removing material at the centre lowers the fundamental
+    # trade fact (common practice, no source): removing material at the centre lowers the
+    # fundamental
     mesh = SolidMesh(12, 1, 2)
     blank = solid_modes(L, B, T0, constant(T0), WOOD, 4, mesh=mesh)
     cut = PiecewiseLinear([0.0, 0.15, 0.2, 0.25, 0.4], [T0, T0, 0.8 * T0, T0, T0])
@@ -423,7 +448,7 @@ def test_uniform_bar_torsion_against_saint_venant():
     b, h = 0.04, 0.02  # b/h = 2
     r = solid_modes(0.4, b, h, constant(h), ALUMINIUM, 12, mesh=SolidMesh(16, 3, 4, 1.0, 1.0, 1.0))
     # J = k b h^3 with the Timoshenko & Goodier series (Theory of Elasticity, torsion of
-    # rectangular bars); its table gives k = 0.229 at b/h = 2 (REFERENCES.md)
+    # rectangular bars); its table gives k = 0.229 at b/h = 2
     n = np.arange(1, 400, 2)
     k = (1 - 192 / np.pi**5 * (h / b) * np.sum(np.tanh(n * np.pi * b / (2 * h)) / n**5)) / 3
     assert k == pytest.approx(0.229, abs=5e-4)  # the table's 3 digits
@@ -462,7 +487,7 @@ def test_classification_of_a_uniform_bar(slender_aluminium):
 
 
 def test_mode_one_nodes_near_0224_length():
-    # free-free mode 1 nodes at 0.22416 L and 0.77584 L (REFERENCES.md, exact EB shapes); shear
+    # free-free mode 1 nodes at 0.22416 L and 0.77584 L (derived, exact EB shapes); shear
     # moves them outward slightly for this h/L = 0.05 bar, hence 0.003 L
     r = solid_modes(L, B, T0, constant(T0), WOOD, 1, mesh=SolidMesh(24, 1, 2))
     X, U = r.coords, r.shapes[0]

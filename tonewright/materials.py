@@ -35,13 +35,12 @@ from pathlib import Path
 from types import MappingProxyType
 from typing import Any, Literal
 
-import numpy as np
 from pydantic import BaseModel, ConfigDict, Field, ValidationError, model_validator
 
 from tonewright.errors import InputError, from_validation_error
 from tonewright.forward.geometry import Material
 from tonewright.forward.orthotropic import Orthotropic as SolidMaterial
-from tonewright.forward.orthotropic import compliance_lrt
+from tonewright.forward.orthotropic import OrthotropicConstants
 from tonewright.forward.orthotropic import isotropic as solid_isotropic
 
 __all__ = [
@@ -49,7 +48,6 @@ __all__ = [
     "MaterialKind",
     "MaterialSpec",
     "MaterialTable",
-    "Orthotropic",
     "isotropic_shear_modulus",
     "list_materials",
     "load_material",
@@ -75,41 +73,6 @@ def isotropic_shear_modulus(E: float, nu: float) -> float:
 
 
 @dataclass(frozen=True)
-class Orthotropic:
-    """Orthotropic elastic constants of wood in Pa (moduli) and Wood Handbook Poisson ratios."""
-
-    E_L: float
-    E_R: float
-    E_T: float
-    G_LR: float
-    G_LT: float
-    G_RT: float
-    nu_LR: float
-    nu_LT: float
-    nu_RT: float
-
-    def compliance_matrix(self) -> np.ndarray:
-        """6x6 compliance in Voigt order (L, R, T, RT, LT, LR), 1/Pa; see the module docstring."""
-        return compliance_lrt(self)
-
-    def stiffness_matrix(self) -> np.ndarray:
-        """6x6 stiffness (inverse compliance) in the same Voigt order, Pa."""
-        return np.linalg.inv(self.compliance_matrix())
-
-    def scaled(self, e_factor: float, g_factor: float) -> Orthotropic:
-        """Normal moduli times ``e_factor``, shear moduli times ``g_factor``; ratios kept."""
-        return replace(
-            self,
-            E_L=self.E_L * e_factor,
-            E_R=self.E_R * e_factor,
-            E_T=self.E_T * e_factor,
-            G_LR=self.G_LR * g_factor,
-            G_LT=self.G_LT * g_factor,
-            G_RT=self.G_RT * g_factor,
-        )
-
-
-@dataclass(frozen=True)
 class MaterialSpec:
     """A resolved material, SI units.
 
@@ -128,7 +91,7 @@ class MaterialSpec:
     nu: float
     loss_factor: float
     temp_coeff_cents_per_K: float | None = None
-    orthotropic: Orthotropic | None = None
+    orthotropic: OrthotropicConstants | None = None
     sources: Mapping[str, str] = field(default_factory=lambda: MappingProxyType({}))
     note: str = ""
 
@@ -153,19 +116,7 @@ class MaterialSpec:
         """
         o = self.orthotropic
         if o is not None:
-            return SolidMaterial(
-                o.E_L,
-                o.E_R,
-                o.E_T,
-                o.G_LR,
-                o.G_LT,
-                o.G_RT,
-                o.nu_LR,
-                o.nu_LT,
-                o.nu_RT,
-                self.rho,
-                thickness_axis,
-            )
+            return SolidMaterial.from_constants(o, self.rho, thickness_axis)
         if (
             self.kind in ("metal", "isotropic")
             or abs(self.G - isotropic_shear_modulus(self.E, self.nu)) <= 0.02 * self.G
@@ -231,7 +182,7 @@ class _LibraryEntry(BaseModel):
         sources = MappingProxyType({k: v.source for k, v in self if isinstance(v, _Sourced)})
         ortho = None
         if self.kind == "wood":
-            ortho = Orthotropic(
+            ortho = OrthotropicConstants(
                 **{k: values[k] * (GPA if k[0] in "EG" else 1.0) for k in _WOOD_KEYS}
             )
             E, G, nu = ortho.E_L, ortho.G_LT, ortho.nu_LT

@@ -30,7 +30,16 @@ import numpy as np
 from pydantic import BaseModel, ConfigDict, Field, ValidationError, field_validator, model_validator
 
 from tonewright.errors import InputError, from_validation_error
-from tonewright.forward.geometry import Bar, Hole, PiecewiseLinear, String, Support, Tube, constant
+from tonewright.forward.geometry import (
+    Bar,
+    Hole,
+    PiecewiseLinear,
+    String,
+    Support,
+    Tube,
+    constant,
+    hole_centre_height,
+)
 from tonewright.materials import MaterialSpec, resolve_material
 from tonewright.units import Length, PositionLength, parse_length, parse_position
 
@@ -138,7 +147,7 @@ class BarTable(BaseModel):
             if hole.at - r < 0 or hole.at + r > self.length:
                 raise ValueError(f"holes[{i}] at {hole.at * 1e3:g} mm does not fit inside the bar")
             h_local = float(self.thickness_field()(np.array([hole.at]))[0])
-            z = 0.5 * h_local if hole.height is None else hole.height
+            z = hole_centre_height(hole.height, h_local)
             if z - r <= 0 or z + r >= h_local:
                 raise ValueError(
                     f"holes[{i}]: a {hole.diameter * 1e3:g} mm hole at height {z * 1e3:g} mm "

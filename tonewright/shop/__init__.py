@@ -11,7 +11,7 @@ from tonewright.shop.drawing import drawing_pdf, drawing_svg
 from tonewright.shop.dxf import dxf_text
 from tonewright.shop.gcode import Cutter, GcodeOptions, plan_undercut, undercut_gcode
 from tonewright.shop.outputs import ShopOptions, output_names, render_all, write_all
-from tonewright.shop.part import ShopPart, demo_part
+from tonewright.shop.part import ShopPart
 from tonewright.shop.template import template_layout, template_pdf, template_svgs
 from tonewright.shop.tubes_strings import (
     TubeCut,
@@ -33,7 +33,6 @@ __all__ = [
     "caution_lines",
     "cut_table_csv",
     "cut_table_rows",
-    "demo_part",
     "drawing_pdf",
     "drawing_svg",
     "dxf_text",

@@ -21,12 +21,13 @@ from matplotlib.figure import Figure
 from matplotlib.patches import Circle, FancyArrowPatch, Rectangle
 
 from tonewright import __version__
+from tonewright.acoustics.pitch import cents
 from tonewright.errors import InputError
 from tonewright.shop.cautions import CAUTIONS
 from tonewright.shop.pages import new_page, page_size_mm, pdf_bytes, stable_rc, svg_bytes
 from tonewright.shop.part import ShopPart
 
-__all__ = ["cents", "drawing_pdf", "drawing_scale", "drawing_svg"]
+__all__ = ["drawing_pdf", "drawing_scale", "drawing_svg"]
 
 MARGIN_MM = 10.0
 _PT_PER_MM = 72.0 / 25.4
@@ -40,11 +41,6 @@ _TOL = "#c9dced"
 
 def _lw(mm: float) -> float:
     return mm * _PT_PER_MM
-
-
-def cents(f_hz: float, ref_hz: float) -> float:
-    """Interval from ``ref_hz`` up to ``f_hz`` in cents: ``1200 log2(f / ref)``."""
-    return 1200.0 * math.log2(f_hz / ref_hz)
 
 
 def drawing_scale(

@@ -18,26 +18,26 @@ All lengths are metres here; outputs convert to millimetres.
 from __future__ import annotations
 
 import math
-from collections.abc import Sequence
 from dataclasses import dataclass
 
 import numpy as np
 
 from tonewright.errors import InputError
 
-__all__ = ["ShopPart", "demo_part"]
+__all__ = ["ShopPart"]
 
 # Station positions closer than this to 0 or L count as the end (floating-point slack).
 _END_SLACK_M = 1e-9
 
 
-def _positive(name: str, value: object) -> float:
+def _positive(name: str, value: object, what: str = "length in metres") -> float:
+    """``value`` as a positive finite float, else an InputError naming ``name`` and ``what``."""
     try:
         v = float(value)  # type: ignore[arg-type]
     except (TypeError, ValueError):
-        raise InputError(f"{name}: {value!r} is not a number; give a length in metres") from None
+        raise InputError(f"{name}: {value!r} is not a number; give a {what}") from None
     if not math.isfinite(v) or v <= 0:
-        raise InputError(f"{name}: {value!r} must be a positive finite length in metres")
+        raise InputError(f"{name}: {value!r} must be a positive finite {what}")
     return v
 
 
@@ -197,10 +197,6 @@ class ShopPart:
         return self.depth_m(x)
 
     @property
-    def breakpoints_m(self) -> np.ndarray:
-        return np.asarray(self.stations_x_m)
-
-    @property
     def min_thickness_m(self) -> float:
         return float(min(self.stations_thickness_m))
 
@@ -209,38 +205,3 @@ class ShopPart:
         """A file-name-safe version of the title."""
         keep = "".join(c if c.isalnum() else "_" for c in self.title.strip().lower())
         return "_".join(part for part in keep.split("_") if part) or "part"
-
-
-def demo_part(
-    title: str = "Demo bar F3 (workshop sample)",
-    stations: Sequence[float] | None = None,
-) -> ShopPart:
-    """An invented demo: a 380 x 50 x 20 mm padauk-like bar undercut to 6 mm.
-
-    The profile is a smooth arch between x = 90 and 290 mm sampled at 10 mm; nodes and holes
-    sit just outside it, near 0.21 L, roughly where an undercut bar's mode-1 nodes lie.
-    Invented data for examples and tests only: a real design comes from the forward model.
-    """
-    L, T, t_min = 0.380, 0.020, 0.006
-    if stations is None:
-        x_in = np.arange(0.090, 0.2900001, 0.010)
-        stations = np.concatenate(([0.0], x_in, [L]))
-    x = np.asarray(stations, dtype=float)
-    u = np.clip((x - 0.090) / 0.200, 0.0, 1.0)  # 0..1 across the arch
-    t = T - (T - t_min) * np.sin(np.pi * u) ** 1.5
-    nodes = (0.0805, L - 0.0805)
-    return ShopPart(
-        title=title,
-        length_m=L,
-        width_m=0.050,
-        blank_thickness_m=T,
-        stations_x_m=tuple(x),
-        stations_thickness_m=tuple(t),
-        holes=tuple((n, 0.005, 0.010) for n in nodes),
-        node_positions_m=nodes,
-        node_tolerance_m=0.001,
-        material_name="padauk-like hardwood (demo)",
-        grain_note="grain along the length",
-        partials=(("f1", 174.61, 174.9), ("f2", 698.46, 697.1), ("f3", 1746.1, 1752.0)),
-        notes=("Invented demo bar for examples and tests.",),
-    )

@@ -26,8 +26,10 @@ from dataclasses import dataclass
 import numpy as np
 from scipy.optimize import brentq
 
+from tonewright.acoustics.pitch import cents
 from tonewright.errors import InputError
 from tonewright.shop.cautions import caution_lines, comment_lines
+from tonewright.shop.part import _positive
 
 __all__ = [
     "TubeCut",
@@ -38,7 +40,6 @@ __all__ = [
     "uniform_node_fraction",
     "winding_schedule",
     "winding_schedule_csv",
-    "wrap_linear_density",
 ]
 
 _BETA_L1 = 4.73004074  # first root of cos x cosh x = 1 (Thomson, App. D)
@@ -56,17 +57,7 @@ def uniform_node_fraction() -> float:
 
 
 def _pos(name: str, v: object) -> float:
-    try:
-        x = float(v)  # type: ignore[arg-type]
-    except (TypeError, ValueError):
-        raise InputError(f"{name}: {v!r} is not a number") from None
-    if not math.isfinite(x) or x <= 0:
-        raise InputError(f"{name}: {v!r} must be positive")
-    return x
-
-
-def _cents(f: float, ref: float) -> float:
-    return 1200.0 * math.log2(f / ref)
+    return _positive(name, v, "number")
 
 
 # --- tubes ----------------------------------------------------------------------------------
@@ -122,7 +113,7 @@ def _tube_rows(tubes: Sequence[TubeCut]) -> list[dict[str, str]]:
     for t in tubes:
         dev = ""
         if t.target_hz and t.predicted_hz:
-            dev = f"{_cents(t.predicted_hz, t.target_hz):+.1f}"
+            dev = f"{cents(t.predicted_hz, t.target_hz):+.1f}"
         rows.append(
             {
                 "name": t.name,
@@ -206,15 +197,6 @@ def tube_cut_sheet(tubes: Sequence[TubeCut], kerf_mm: float = 2.0) -> str:
 
 
 # --- strings --------------------------------------------------------------------------------
-def wrap_linear_density(
-    wrap_diameter_m: float, wrap_density_kg_m3: float, core_diameter_m: float, pitch_m: float
-) -> float:
-    """Added linear density (kg/m) of a single-layer helical wrap at ``pitch_m``."""
-    D = core_diameter_m + wrap_diameter_m
-    mu_wire = wrap_density_kg_m3 * math.pi * wrap_diameter_m**2 / 4
-    return mu_wire * math.hypot(math.pi * D, pitch_m) / pitch_m
-
-
 @dataclass(frozen=True)
 class WoundString:
     """A string whose linear density ``mu(x)`` is built from a core and a helical wrap."""
