@@ -33,7 +33,9 @@ def from_validation_error(exc: ValidationError, where: str) -> InputError:
         msg = err["msg"].removeprefix("Value error, ")
         shown = repr(err["input"])
         shown = shown if len(shown) <= 60 else shown[:57] + "..."
-        got = "" if err["type"] == "missing" or not loc else f" (got {shown})"
+        # a whole table as the value says nothing the message does not
+        table = isinstance(err["input"], dict)
+        got = "" if err["type"] == "missing" or not loc or table else f" (got {shown})"
         parts.append(f"{field_name}: {msg}{got}")
     return InputError("; ".join(parts))
 

@@ -38,6 +38,7 @@ from pydantic import (
     ConfigDict,
     Field,
     ValidationError,
+    ValidationInfo,
     field_validator,
     model_validator,
 )
@@ -88,17 +89,17 @@ SIZE_LIMITS = {
 }
 
 
-def _within(limits: str, what: str):
-    def check(value: float) -> float:
-        _check_size(what, value, limits)
+def _within(limits: str) -> AfterValidator:
+    def check(value: float, info: ValidationInfo) -> float:
+        _check_size(info.field_name or "size", value, limits)
         return value
 
     return AfterValidator(check)
 
 
-PartLength = Annotated[Length, _within("length", "length")]
-SectionLength = Annotated[Length, _within("section", "size")]
-WireLength = Annotated[Length, _within("wire", "diameter")]
+PartLength = Annotated[Length, _within("length")]
+SectionLength = Annotated[Length, _within("section")]
+WireLength = Annotated[Length, _within("wire")]
 
 
 def _check_size(
