@@ -2,20 +2,23 @@
 
 import math
 import re
+from pathlib import Path
 
 import numpy as np
 import pytest
-from pydantic import ValidationError
+from pydantic import BaseModel, ConfigDict, ValidationError
 from tonewright.forward.geometry import Material
 from tonewright.forward.orthotropic import compliance_matrix, stiffness_matrix
 
-from tonewright.errors import InputError
+from tonewright.errors import InputError, from_validation_error
 from tonewright.materials import (
+    MaterialEntry,
     MaterialTable,
     isotropic_shear_modulus,
     list_materials,
     load_material,
     load_material_file,
+    material_value,
     resolve_material,
 )
 
@@ -298,3 +301,40 @@ def test_material_file_errors(tmp_path):
         load_material_file(bad)
     with pytest.raises(FileNotFoundError):
         load_material_file(tmp_path / "missing.toml")
+
+
+class _Part(BaseModel):
+    model_config = ConfigDict(extra="forbid", frozen=True)
+    material: MaterialEntry
+
+
+def test_material_entry_kinds_and_their_written_form():
+    assert _Part(material="brass-c26000").material == "brass-c26000"
+    assert _Part(material="boards/maple.toml").material == Path("boards/maple.toml")
+    table = _Part(material={"base": "sugar-maple", "E": 11}).material
+    assert isinstance(table, MaterialTable)
+    assert material_value(table) == {"base": "sugar-maple", "E": 11.0}
+    assert material_value(Path("boards/maple.toml")) == "boards/maple.toml"
+    assert resolve_material(table).E == 11e9
+
+
+@pytest.mark.parametrize(
+    ("value", "line"),
+    [
+        # the union's member tags stay out of the message: the user wrote material.E
+        ({"E": "x", "density": 7850}, "part.toml: material.E: Input should be a valid number"),
+        ("unobtainium", "part.toml: material: material 'unobtainium' is not in the library"),
+        (42, "part.toml: material: expected a library name, a material file (.toml) or a table"),
+    ],
+)
+def test_material_entry_errors_name_the_field(value, line):
+    with pytest.raises(ValidationError) as exc:
+        _Part(material=value)
+    assert str(from_validation_error(exc.value, "part.toml")).startswith(line)
+
+
+def test_material_file_not_utf8(tmp_path):
+    path = tmp_path / "board.toml"
+    path.write_bytes('name = "Érable"\nE = 12\ndensity = 700\n'.encode("latin-1"))
+    with pytest.raises(InputError, match=r"board\.toml: not UTF-8 text \(byte 0xc9 on line 1\)"):
+        load_material_file(path)

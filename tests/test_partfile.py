@@ -7,6 +7,7 @@ and exit with code 2 (no traceback).
 
 import copy
 import json
+from pathlib import Path
 
 import numpy as np
 import pytest
@@ -16,7 +17,9 @@ from typer.testing import CliRunner
 
 from tonewright.cli import app
 from tonewright.errors import InputError
-from tonewright.partfile import load_part, parse_part
+from tonewright.materials import MaterialTable
+from tonewright.partfile import DesignTable, load_part, parse_part
+from tonewright.tuning import TargetSpec
 
 BAR = {"material": "sugar-maple", "bar": {"length": 400, "width": 50, "thickness": 20}}
 TUBE = {"material": "sugar-maple", "tube": {"length": 1000, "outer_diameter": 25, "wall": 1.5}}
@@ -224,6 +227,69 @@ CASES = [
     ("bar-without-material", _with(BAR, material=None), ["material is missing"]),
     ("unknown-top-level-key", _with(BAR, colour="red"), ["colour", "Extra inputs"]),
     ("unknown-material", _with(BAR, material="unobtainium"), ["unobtainium", "sugar-maple"]),
+    ("material-not-a-name", _with(BAR, material=5), ["material", "library name", "table"]),
+    (
+        "material-table-field",
+        _with(BAR, material={"E": 12.6, "density": 0.7}),
+        ["material", "density = 0.7", "kg/m^3"],
+    ),
+    # sizes the models handle (partfile.SIZE_LIMITS)
+    ("bar-too-short", _with(BAR, bar={"length": 5}), ["bar.length", "5 mm", "10 mm to 5000 mm"]),
+    ("bar-too-long", _with(BAR, bar={"length": 6000}), ["bar.length", "6000 mm", "5000 mm"]),
+    ("bar-too-wide", _with(BAR, bar={"width": 250}), ["bar", "width 250 mm", "200 mm"]),
+    ("bar-too-thick", _with(BAR, bar={"thickness": 120}), ["bar", "thickness 120 mm", "100 mm"]),
+    ("bar-too-thin", _with(BAR, bar={"thickness": 0.2}), ["bar.thickness", "0.2 mm", "0.5 mm"]),
+    (
+        "bar-width-profile-too-wide",
+        _with(BAR, bar={"width_profile": [[0, 50], [400, 210]]}),
+        ["width 210 mm", "200 mm"],
+    ),
+    ("tube-too-long", _with(TUBE, tube={"length": 5500}), ["tube.length", "5500 mm"]),
+    ("tube-too-fat", _with(TUBE, tube={"length": 80}), ["outer_diameter 25 mm", "20 mm"]),
+    ("string-too-long", _with(STRING, string={"length": 7000}), ["string.length", "7000 mm"]),
+    ("string-tension-huge", _with(STRING, string={"tension": 2e5}), ["string.tension", "100000"]),
+    (
+        "string-too-thick",
+        _with(STRING, material="sugar-maple", string={"linear_density": None, "diameter": 40}),
+        ["diameter 40 mm", "32.5 mm"],
+    ),
+    # [design]: validated with the part, against the part
+    ("design-shape", _with(BAR, design={"shape": "bogus"}), ["design.shape", "bogus", "spline"]),
+    ("design-typo", _with(BAR, design={"min_thikness": 4}), ["design.min_thikness", "Extra"]),
+    ("design-end-keep-nan", _with(BAR, design={"end_keep": "nan"}), ["design.end_keep", "finite"]),
+    ("design-end-keep-negative", _with(BAR, design={"end_keep": -5}), ["design.end_keep", "-5"]),
+    ("design-end-keep-half", _with(BAR, design={"end_keep": 200}), ["design.end_keep", "half"]),
+    ("design-node-zone-negative", _with(BAR, design={"node_zone": -1}), ["design.node_zone"]),
+    ("design-cutter-nan", _with(BAR, design={"cutter_radius": "nan"}), ["design.cutter_radius"]),
+    ("design-min-thickness-zero", _with(BAR, design={"min_thickness": 0}), ["min_thickness"]),
+    (
+        "design-min-thickness-blank",
+        _with(BAR, design={"min_thickness": 20}),
+        ["design.min_thickness 20 mm", "blank thickness 20 mm"],
+    ),
+    ("design-max-depth-nan", _with(BAR, design={"max_depth": "nan"}), ["design.max_depth"]),
+    (
+        "design-max-depth-blank",
+        _with(BAR, design={"max_depth": 25}),
+        ["design.max_depth 25 mm", "blank thickness 20 mm"],
+    ),
+    (
+        "design-free-length-without-range",
+        _with(BAR, design={"free_length": True}),
+        ["design", "length_range"],
+    ),
+    (
+        "design-wall-range-too-thick",
+        _with(TUBE, design={"wall_range": [1, 13]}),
+        ["design.wall_range", "13 mm", "25 mm"],
+    ),
+    # [target]: validated with the part
+    ("target-no-partials", _with(BAR, target={"fundamental": "F4"}), ["target", "exactly one"]),
+    (
+        "target-profile-unknown",
+        _with(BAR, target={"fundamental": "F4", "profile": "nope"}),
+        ["target", "nope", "not in the library"],
+    ),
 ]
 
 
@@ -326,3 +392,51 @@ def test_design_result_json_is_read_through_its_part_table(tmp_path):
     part_file, _ = load_part(path)
     assert part_file.kind == "bar" and part_file.length == pytest.approx(0.4)
     assert parse_part(BAR).to_part().length == pytest.approx(0.4)
+
+
+def test_tables_are_typed_frozen_values(tmp_path):
+    raw = _with(
+        BAR,
+        target={"fundamental": "F4", "ratios": [1, 4]},
+        design={"shape": "arch", "end_keep": 10, "cutter_radius": "1 in"},
+    )
+    part_file = parse_part(raw)
+    assert isinstance(part_file.design, DesignTable) and part_file.design.shape == "arch"
+    assert part_file.design.end_keep == pytest.approx(0.010)  # mm at the door, metres inside
+    assert part_file.design.cutter_radius == pytest.approx(0.0254)  # 1 in = 25.4 mm (1959)
+    assert isinstance(part_file.target, TargetSpec) and part_file.target.ratios == [1, 4]
+    with pytest.raises(ValueError, match="frozen"):
+        part_file.design.shape = "steps"  # type: ignore[misc]
+    # no [design] table: the defaults, not None
+    assert parse_part(BAR).design == DesignTable()
+
+
+def test_material_entry_is_a_name_a_file_or_a_table(tmp_path):
+    assert parse_part(BAR).material == "sugar-maple"
+    table = parse_part(_with(BAR, material={"base": "sugar-maple", "E": 11.0})).material
+    assert isinstance(table, MaterialTable) and table.E == 11.0
+    maple = tmp_path / "maple.toml"
+    maple.write_text('name = "board 3"\nbase = "sugar-maple"\nE = 11.5\n', encoding="utf-8")
+    part_file, base = load_part(_write(tmp_path / "bar.toml", _with(BAR, material="maple.toml")))
+    assert part_file.material == Path("maple.toml")
+    assert part_file.material_spec(base).E == pytest.approx(11.5e9)  # found beside the part
+
+
+def test_written_back_tables_read_back_the_same(tmp_path):
+    # material and target as written by a design (part_table): the same values on reading
+    raw = _with(
+        BAR,
+        material={"base": "sugar-maple", "E": 11.0},
+        target={"fundamental": "F4", "profile": "marimba-1-4-10", "tolerance_cents": 2},
+    )
+    first = parse_part(raw)
+    again = parse_part(
+        {
+            "bar": raw["bar"],
+            "material": first.material_value(),
+            "target": first.target_value(),
+        }
+    )
+    assert again.material == first.material and again.target == first.target
+    assert first.target_value() == raw["target"]  # defaults are not written out
+    assert parse_part(STRING).material_value() is None

@@ -249,3 +249,10 @@ def test_bad_profile_files(tmp_path):
         )
     with pytest.raises(InputError, match="expected a table"):
         parse_target("marimba")
+
+
+def test_profile_file_not_utf8_is_one_line(tmp_path):
+    path = tmp_path / "bells.toml"
+    path.write_bytes("name = 'cloches'\ndescription = 'été'\n".encode("latin-1"))
+    with pytest.raises(InputError, match=r"bells\.toml: not UTF-8 text"):
+        load_target(path)

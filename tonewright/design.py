@@ -28,13 +28,12 @@ The ``[design]`` table (all optional; lengths in mm unless a unit is written):
 from __future__ import annotations
 
 from dataclasses import dataclass
-from typing import Any, Literal
+from typing import Any
 
 import numpy as np
-from pydantic import BaseModel, ConfigDict, Field, ValidationError, model_validator
 
 from tonewright.acoustics.pitch import critical_bandwidth_hz
-from tonewright.errors import InputError, from_validation_error
+from tonewright.errors import InputError
 from tonewright.fidelity import Stage, check_bar, high_fidelity_function, stages_for
 from tonewright.forward import Bar, String, Tube, solve
 from tonewright.forward.geometry import Part
@@ -51,9 +50,8 @@ from tonewright.optimizer import (
     corrected_design,
     design,
 )
-from tonewright.partfile import PartFile
-from tonewright.tuning import ResolvedTarget, parse_target, resolve
-from tonewright.units import Length
+from tonewright.partfile import DesignTable, PartFile
+from tonewright.tuning import ResolvedTarget, resolve
 
 __all__ = [
     "STRIKE_COMPONENTS",
@@ -70,40 +68,6 @@ __all__ = [
 
 # strike note = geometric mean of f4/2, f5/3, f6/4 (tonewright.acoustics.pitch.strike_note_hz)
 STRIKE_COMPONENTS = ((4, 2.0, 1.0 / 3.0), (5, 3.0, 1.0 / 3.0), (6, 4.0, 1.0 / 3.0))
-
-
-class DesignTable(BaseModel):
-    model_config = ConfigDict(extra="forbid", frozen=True)
-    shape: Literal["spline", "arch", "steps"] = "spline"
-    control_points: int = Field(default=5, ge=2, le=12)
-    steps: int = Field(default=3, ge=1, le=8)
-    symmetric: bool = True
-    free_length: bool = False
-    length_range: tuple[Length, Length] | None = None
-    min_thickness: Length | None = None
-    max_depth: Length | None = None
-    end_keep: Length | float = 0.0
-    node_zone: Length | float = 0.0
-    cutter_radius: Length | float = 0.0
-    clearance: Literal["critical-band", "off"] = "critical-band"
-    clearance_bands: float = Field(default=1.0, gt=0.0, le=4.0)
-    coincidence_hz: float = Field(default=3.0, ge=0.0, le=50.0)
-    wall_range: tuple[Length, Length] | None = None
-    density_range: tuple[float, float] | None = None
-    seed: int = Field(default=1, ge=0)
-    budget: int = Field(default=2000, ge=50, le=100000)
-    fidelity: Literal["beam", "plane", "solid"] | None = None  # bars: plane by default
-    thickness_axis: Literal["T", "R"] = "T"  # wood: T quarter-sawn, R flat-sawn (2D/3D models)
-
-    @model_validator(mode="after")
-    def _ranges(self) -> DesignTable:
-        for name in ("length_range", "wall_range", "density_range"):
-            r = getattr(self, name)
-            if r is not None and not 0 < r[0] < r[1]:
-                raise ValueError(f"{name} must be [smaller, larger] positive values")
-        if self.free_length and self.length_range is None:
-            raise ValueError("free_length needs length_range = [shortest, longest]")
-        return self
 
 
 @dataclass(frozen=True, eq=False)
@@ -171,15 +135,12 @@ def build_problem(part_file: PartFile, base_dir=None, seed: int | None = None) -
     """Validate the [target] and [design] tables and set up the evaluator."""
     if part_file.target is None:
         raise InputError("the part file has no [target] table: say what to tune to")
-    try:
-        table = DesignTable.model_validate(part_file.design or {})
-    except ValidationError as exc:
-        raise from_validation_error(exc, "design") from None
+    table = part_file.design
     if seed is not None:
         table = table.model_copy(update={"seed": seed})
     spec = part_file.material_spec(base_dir)
     coeff = spec.temp_coeff_cents_per_K if spec is not None else None
-    target = resolve(parse_target(part_file.target), material_temp_coeff=coeff)
+    target = resolve(part_file.target, material_temp_coeff=coeff)
     blank = part_file.to_part(base_dir)
     families = {p.family for p in target.partials}
     if isinstance(blank, String) and families != {"bending"}:
@@ -328,7 +289,8 @@ def part_table(problem: Problem, u: np.ndarray) -> dict[str, Any]:
     out: dict[str, Any] = {}
     if pf.title:
         out["title"] = f"{pf.title} (designed)"
-    out["material"] = pf.material
+    if pf.material is not None:  # a string given by its linear density needs none
+        out["material"] = pf.material_value()
     space = problem.space
     L = space.length(u)
     if pf.bar is not None:
@@ -383,5 +345,5 @@ def part_table(problem: Problem, u: np.ndarray) -> dict[str, Any]:
         ]
     if pf.model.theory != "timoshenko" or pf.model.tolerance_cents != 0.01:
         out["model"] = pf.model.model_dump()
-    out["target"] = pf.target
+    out["target"] = pf.target_value()
     return out

@@ -87,11 +87,10 @@ from pydantic import (
 )
 
 from tonewright.acoustics.pitch import hz_to_note, note_to_midi
-from tonewright.design import DesignTable
-from tonewright.errors import InputError, from_validation_error
+from tonewright.errors import InputError, from_validation_error, read_text_input
 from tonewright.materials import MaterialSpec, resolve_material
-from tonewright.partfile import parse_part
-from tonewright.tuning import ResolvedTarget, parse_target, resolve
+from tonewright.partfile import DesignTable, parse_part
+from tonewright.tuning import ResolvedTarget, resolve
 from tonewright.units import Length, PositionLength
 
 __all__ = [
@@ -376,7 +375,7 @@ def load_instrument(path: str | Path) -> tuple[InstrumentFile, Path]:
 
     path = Path(path)
     try:
-        raw = tomllib.loads(path.read_text(encoding="utf-8"))
+        raw = tomllib.loads(read_text_input(path))
     except tomllib.TOMLDecodeError as exc:
         raise InputError(f"{path}: not valid TOML ({exc})") from None
     return parse_instrument(raw, where=path.name), path.parent
@@ -398,6 +397,7 @@ class BarPlan:
     profile: str
     target: ResolvedTarget
     part: Mapping[str, Any]  # a part-file table, mm, with [target] and [design]
+    design: DesignTable  # its [design] table, validated
 
 
 @dataclass(frozen=True)
@@ -481,22 +481,11 @@ def plan_instrument(spec: InstrumentFile, base_dir: Path | None = None) -> Instr
         size = {name: float(dims[name][j]) for name in dims}
         profile = profiles[m]
         design = dict(spec.design)
-        where = "design"
         if m in overrides:
-            i, o = overrides[m]
+            _, o = overrides[m]
             size.update({k: getattr(o, k) for k in size if getattr(o, k) is not None})
             profile = o.profile or profile
             design.update(o.design)
-            where = f"bar[{i}].design" if o.design else where
-        try:
-            table = DesignTable.model_validate(design)
-        except ValidationError as exc:
-            raise from_validation_error(exc, where) from None
-        if table.min_thickness is not None and table.min_thickness >= size["thickness"]:
-            raise InputError(
-                f"{where}.min_thickness: {table.min_thickness * 1e3:g} mm for {note} must be "
-                f"under its blank thickness {size['thickness'] * 1e3:.3g} mm"
-            )
         target_table: dict[str, Any] = {
             "fundamental": note,
             "profile": profile,
@@ -505,7 +494,6 @@ def plan_instrument(spec: InstrumentFile, base_dir: Path | None = None) -> Instr
         if spec.stretch_cents_per_octave:
             target_table["stretch_cents_per_octave"] = spec.stretch_cents_per_octave
             target_table["stretch_from"] = spec.stretch_from
-        target = resolve(parse_target(target_table, where=f"profile for {note}"))
         part = {
             "title": f"{spec.title}, {note}",
             "material": material_value,
@@ -513,7 +501,9 @@ def plan_instrument(spec: InstrumentFile, base_dir: Path | None = None) -> Instr
             "target": target_table,
             "design": design,
         }
-        parse_part(part, where=f"bar {note}")  # every bar must be a valid part file
+        # every bar is a valid part file: its [design] and [target] validated here, once
+        part_file = parse_part(part, where=f"bar {note}")
+        target = resolve(part_file.target)
         bars.append(
             BarPlan(
                 note=note,
@@ -524,6 +514,7 @@ def plan_instrument(spec: InstrumentFile, base_dir: Path | None = None) -> Instr
                 profile=profile,
                 target=target,
                 part=part,
+                design=part_file.design,
             )
         )
     b = spec.blanks

@@ -33,17 +33,28 @@ from functools import cache
 from importlib import resources
 from pathlib import Path
 from types import MappingProxyType
-from typing import Any, Literal
+from typing import Annotated, Any, Literal
 
-from pydantic import BaseModel, ConfigDict, Field, ValidationError, model_validator
+from pydantic import (
+    AfterValidator,
+    BaseModel,
+    ConfigDict,
+    Discriminator,
+    Field,
+    Tag,
+    ValidationError,
+    model_validator,
+)
 
-from tonewright.errors import InputError, from_validation_error
+from tonewright.errors import InputError, from_validation_error, read_text_input, union_tag
 from tonewright.forward.geometry import Material
 from tonewright.forward.orthotropic import Orthotropic as SolidMaterial
 from tonewright.forward.orthotropic import OrthotropicConstants
 from tonewright.forward.orthotropic import isotropic as solid_isotropic
 
 __all__ = [
+    "LibraryName",
+    "MaterialEntry",
     "MaterialFile",
     "MaterialKind",
     "MaterialSpec",
@@ -52,6 +63,7 @@ __all__ = [
     "list_materials",
     "load_material",
     "load_material_file",
+    "material_value",
     "resolve_material",
 ]
 
@@ -332,7 +344,7 @@ def load_material_file(path: str | Path) -> MaterialSpec:
     """A material file: top-level keys, or the same keys under a single ``[material]`` table."""
     path = Path(path)
     try:
-        raw: dict[str, Any] = tomllib.loads(path.read_text(encoding="utf-8"))
+        raw: dict[str, Any] = tomllib.loads(read_text_input(path))
     except tomllib.TOMLDecodeError as exc:
         raise InputError(f"{path}: not valid TOML ({exc})") from None
     if set(raw) == {"material"} and isinstance(raw["material"], dict):
@@ -345,10 +357,60 @@ def load_material_file(path: str | Path) -> MaterialSpec:
     return replace(spec, note=model.note or spec.note)
 
 
-def resolve_material(value: str | Mapping[str, Any], where: str = "material") -> MaterialSpec:
-    """A part file's material entry: a library name, a path to a material file, or a table."""
+def _library_name(name: str) -> str:
+    load_material(name)  # InputError (a ValueError) names the library's materials
+    return name
+
+
+LibraryName = Annotated[str, AfterValidator(_library_name)]
+"""A material of the shipped library, checked at the door."""
+
+
+def _looks_like_path(text: str) -> bool:
+    return text.endswith(".toml") or "/" in text or "\\" in text
+
+
+def _entry_kind(value: Any) -> str | None:
+    if isinstance(value, Mapping | MaterialTable):
+        return union_tag("table")
+    if isinstance(value, Path):
+        return union_tag("file")
     if isinstance(value, str):
-        if value.endswith(".toml") or "/" in value or "\\" in value:
+        return union_tag("file") if _looks_like_path(value) else union_tag("library")
+    return None
+
+
+MaterialEntry = Annotated[
+    Annotated[LibraryName, Tag(union_tag("library"))]
+    | Annotated[Path, Tag(union_tag("file"))]
+    | Annotated[MaterialTable, Tag(union_tag("table"))],
+    Discriminator(
+        _entry_kind,
+        custom_error_type="material_entry",
+        custom_error_message="expected a library name, a material file (.toml) or a table",
+    ),
+]
+"""A part file's ``material``: a library name (str), a material file (Path, ending in .toml
+or holding a folder separator) or an inline table (MaterialTable)."""
+
+
+def material_value(entry: str | Path | MaterialTable) -> str | dict[str, Any]:
+    """The entry as written to a part file (TOML or JSON)."""
+    if isinstance(entry, MaterialTable):
+        return entry.model_dump(exclude_none=True)
+    return str(entry)
+
+
+def resolve_material(
+    value: str | Path | MaterialTable | Mapping[str, Any], where: str = "material"
+) -> MaterialSpec:
+    """A part file's material entry: a library name, a path to a material file, or a table."""
+    if isinstance(value, MaterialTable):
+        return value.to_spec()
+    if isinstance(value, Path):
+        return load_material_file(value)
+    if isinstance(value, str):
+        if _looks_like_path(value):
             return load_material_file(value)
         return load_material(value)
     if isinstance(value, Mapping):

@@ -16,6 +16,11 @@ Every problem is reported as ``field: what is wrong (got value)`` through InputE
     kind = "cord"          # clamp | pin | cord | spring | mass | touch
     at = 90
     stiffness = 2.0        # N/mm (cord, spring)
+    [target]               # optional: what to tune to (tonewright.tuning.TargetSpec)
+    [design]               # optional: the limits of a design (DesignTable)
+
+Sizes are held to the range the models handle (``SIZE_LIMITS``): a part outside it is refused
+with the field, the value and the allowed range, not solved into nonsense.
 """
 
 from __future__ import annotations
@@ -24,12 +29,21 @@ import itertools
 import json
 import tomllib
 from pathlib import Path
-from typing import Any, Literal
+from typing import Annotated, Any, Literal
 
 import numpy as np
-from pydantic import BaseModel, ConfigDict, Field, ValidationError, field_validator, model_validator
+from pydantic import (
+    AfterValidator,
+    BaseModel,
+    ConfigDict,
+    Field,
+    ValidationError,
+    ValidationInfo,
+    field_validator,
+    model_validator,
+)
 
-from tonewright.errors import InputError, from_validation_error
+from tonewright.errors import InputError, from_validation_error, read_text_input
 from tonewright.forward.geometry import (
     Bar,
     Hole,
@@ -40,11 +54,14 @@ from tonewright.forward.geometry import (
     constant,
     hole_centre_height,
 )
-from tonewright.materials import MaterialSpec, resolve_material
+from tonewright.materials import MaterialEntry, MaterialSpec, material_value, resolve_material
+from tonewright.tuning import TargetSpec
 from tonewright.units import Length, PositionLength, parse_length, parse_position
 
 __all__ = [
+    "SIZE_LIMITS",
     "BarTable",
+    "DesignTable",
     "ModelTable",
     "PartFile",
     "StringTable",
@@ -55,6 +72,58 @@ __all__ = [
 ]
 
 _FROZEN = ConfigDict(extra="forbid", frozen=True)
+
+# Sizes the models handle, in metres or as a share of the part's length.
+SIZE_LIMITS = {
+    # 10 mm: a 1 mm thick steel bar that short already rings near 50 kHz, past hearing; shorter
+    # parts only make the eigenproblem ill-conditioned. 5 m: twice the longest tubular bell or
+    # bass string; the outputs sample the part every millimetre, so kilometres exhaust memory.
+    "length": (0.010, 5.0),
+    # 0.5 mm: the thinnest tongue or tine a workshop files; below it a part is foil.
+    "section": (0.5e-3, None),
+    # 0.05 mm: half the finest musical wire.
+    "wire": (0.05e-3, None),
+    # thickness (and a tube's outer diameter) <= L/4: against the 2D model of a uniform
+    # rosewood bar the Timoshenko beam's bending modes 1-3 are within 4 cents at h/L = 0.2,
+    # 16 cents at 0.25, 28 cents at 0.33 (measured with forward.plane.plane_modes); the 2D/3D
+    # correction closes gaps of that size, not larger ones.
+    "depth_share": 0.25,
+    # width <= L/2: bending across the width behaves as a free beam of length W, near
+    # (L/W)^2 f1 = 4 f1 at W = L/2, already inside the partials; a wider part is a plate and
+    # the beam has none of those modes.
+    "width_share": 0.5,
+    # a string's diameter <= L/20: the string model keeps bending stiffness EI but not shear
+    # or rotary inertia, which stay negligible only for a slender wire.
+    "string_diameter_share": 0.05,
+}
+
+
+def _within(limits: str) -> AfterValidator:
+    def check(value: float, info: ValidationInfo) -> float:
+        _check_size(info.field_name or "size", value, limits)
+        return value
+
+    return AfterValidator(check)
+
+
+PartLength = Annotated[Length, _within("length")]
+SectionLength = Annotated[Length, _within("section")]
+WireLength = Annotated[Length, _within("wire")]
+
+
+def _check_size(
+    name: str, value: float, limits: str = "section", length: float | None = None, share: float = 0
+) -> None:
+    """``name`` within ``SIZE_LIMITS[limits]`` and, with ``length``, at most ``share`` of it."""
+    lo, hi = SIZE_LIMITS[limits]
+    if value < lo or (hi is not None and value > hi):
+        allowed = f"{lo * 1e3:g} mm to {hi * 1e3:g} mm" if hi else f"at least {lo * 1e3:g} mm"
+        raise ValueError(f"{name} {value * 1e3:g} mm is outside the models' range: {allowed}")
+    if length is not None and value > share * length * (1 + 1e-12):
+        raise ValueError(
+            f"{name} {value * 1e3:g} mm is too large for a {length * 1e3:g} mm long part: at most "
+            f"{share:g} of the length ({share * length * 1e3:g} mm) for the beam model"
+        )
 
 
 def _stations(value: Any, what: str) -> tuple[tuple[float, float], ...]:
@@ -114,9 +183,9 @@ class HoleTable(BaseModel):
 
 class BarTable(BaseModel):
     model_config = _FROZEN
-    length: Length
-    width: Length
-    thickness: Length
+    length: PartLength
+    width: SectionLength
+    thickness: SectionLength
     profile: tuple[tuple[float, float], ...] | None = None
     width_profile: tuple[tuple[float, float], ...] | None = None
     holes: tuple[HoleTable, ...] = ()
@@ -133,6 +202,10 @@ class BarTable(BaseModel):
 
     @model_validator(mode="after")
     def _consistent(self) -> BarTable:
+        _check_size("thickness", self.thickness, "section", self.length, SIZE_LIMITS["depth_share"])
+        widths = [self.width] + [w for _, w in self.width_profile or ()]
+        _check_size("width", max(widths), "section", self.length, SIZE_LIMITS["width_share"])
+        _check_size("width_profile width", min(widths))
         for name in ("profile", "width_profile"):
             _check_within(getattr(self, name) or (), self.length, name)
         if self.profile:
@@ -167,8 +240,8 @@ class BarTable(BaseModel):
 
 class TubeTable(BaseModel):
     model_config = _FROZEN
-    length: Length
-    outer_diameter: Length
+    length: PartLength
+    outer_diameter: SectionLength
     wall: Length
     wall_profile: tuple[tuple[float, float], ...] | None = None
 
@@ -179,6 +252,8 @@ class TubeTable(BaseModel):
 
     @model_validator(mode="after")
     def _consistent(self) -> TubeTable:
+        depth_share = SIZE_LIMITS["depth_share"]
+        _check_size("outer_diameter", self.outer_diameter, "section", self.length, depth_share)
         walls = [self.wall] + [w for _, w in self.wall_profile or ()]
         if max(walls) * 2 >= self.outer_diameter:
             raise ValueError(
@@ -191,10 +266,12 @@ class TubeTable(BaseModel):
 
 class StringTable(BaseModel):
     model_config = _FROZEN
-    length: Length
-    tension: float = Field(gt=0, allow_inf_nan=False, description="N")
-    linear_density: float | None = Field(default=None, gt=0, allow_inf_nan=False)
-    diameter: Length | None = None
+    length: PartLength
+    # 100 kN: ten times a piano's bass string; more is a cable, not a musical string
+    tension: float = Field(gt=0, le=1e5, allow_inf_nan=False, description="N")
+    # 10 kg/m: a steel rod of 40 mm diameter; more is not a string
+    linear_density: float | None = Field(default=None, gt=0, le=10.0, allow_inf_nan=False)
+    diameter: WireLength | None = None
     density_profile: tuple[tuple[float, float], ...] | None = None
     bending_stiffness: float | None = Field(default=None, ge=0, allow_inf_nan=False)
 
@@ -213,6 +290,9 @@ class StringTable(BaseModel):
 
     @model_validator(mode="after")
     def _consistent(self) -> StringTable:
+        if self.diameter is not None:
+            share = SIZE_LIMITS["string_diameter_share"]
+            _check_size("diameter", self.diameter, "wire", self.length, share)
         given = [n for n in ("linear_density", "diameter", "density_profile") if getattr(self, n)]
         if not given:
             raise ValueError("give linear_density (kg/m), or diameter with a material")
@@ -256,19 +336,87 @@ class ModelTable(BaseModel):
     tolerance_cents: float = Field(default=0.01, gt=0, le=10)
 
 
+class DesignTable(BaseModel):
+    """The ``[design]`` table: the design space and the shop's limits (see ``tonewright.design``).
+
+    The shop limits are lengths (mm unless a unit is written): ``end_keep``, ``node_zone`` and
+    ``cutter_radius`` zero or more, ``min_thickness`` and ``max_depth`` positive and, for a
+    bar, under the blank thickness (checked by ``PartFile``).
+    """
+
+    model_config = _FROZEN
+    shape: Literal["spline", "arch", "steps"] = "spline"
+    control_points: int = Field(default=5, ge=2, le=12)
+    steps: int = Field(default=3, ge=1, le=8)
+    symmetric: bool = True
+    free_length: bool = False
+    length_range: tuple[PartLength, PartLength] | None = None
+    min_thickness: Length | None = None
+    max_depth: Length | None = None
+    end_keep: PositionLength = 0.0
+    node_zone: PositionLength = 0.0
+    cutter_radius: PositionLength = 0.0
+    clearance: Literal["critical-band", "off"] = "critical-band"
+    clearance_bands: float = Field(default=1.0, gt=0.0, le=4.0)
+    coincidence_hz: float = Field(default=3.0, ge=0.0, le=50.0)
+    wall_range: tuple[Length, Length] | None = None
+    density_range: tuple[float, float] | None = None
+    seed: int = Field(default=1, ge=0)
+    budget: int = Field(default=2000, ge=50, le=100000)
+    fidelity: Literal["beam", "plane", "solid"] | None = None  # bars: plane by default
+    thickness_axis: Literal["T", "R"] = "T"  # wood: T quarter-sawn, R flat-sawn (2D/3D models)
+
+    @model_validator(mode="after")
+    def _ranges(self) -> DesignTable:
+        for name in ("length_range", "wall_range", "density_range"):
+            r = getattr(self, name)
+            if r is not None and not 0 < r[0] < r[1]:
+                raise ValueError(f"{name} must be [smaller, larger] positive values")
+        if self.free_length and self.length_range is None:
+            raise ValueError("free_length needs length_range = [shortest, longest]")
+        return self
+
+
+def _check_design(design: DesignTable, part: BarTable | TubeTable | StringTable) -> None:
+    """The [design] limits against the part they cut."""
+    L = part.length
+    for name in ("end_keep", "node_zone"):
+        value = getattr(design, name)
+        if value >= 0.5 * L:
+            raise ValueError(
+                f"design.{name} {value * 1e3:g} mm leaves nothing to cut: it must be under half "
+                f"the length ({0.5 * L * 1e3:g} mm)"
+            )
+    if isinstance(part, BarTable):
+        t0 = part.thickness
+        for name in ("min_thickness", "max_depth"):
+            value = getattr(design, name)
+            if value is not None and value >= t0:
+                raise ValueError(
+                    f"design.{name} {value * 1e3:g} mm must be under the blank thickness "
+                    f"{t0 * 1e3:g} mm"
+                )
+    if isinstance(part, TubeTable) and design.wall_range is not None:
+        if 2 * design.wall_range[1] >= part.outer_diameter:
+            raise ValueError(
+                f"design.wall_range: {design.wall_range[1] * 1e3:g} mm walls do not fit a "
+                f"{part.outer_diameter * 1e3:g} mm tube (under half the outer diameter)"
+            )
+
+
 class PartFile(BaseModel):
     """A whole part file. Exactly one of [bar], [tube], [string]."""
 
-    model_config = ConfigDict(extra="forbid", frozen=True, arbitrary_types_allowed=True)
+    model_config = _FROZEN
     title: str = ""
     bar: BarTable | None = None
     tube: TubeTable | None = None
     string: StringTable | None = None
-    material: Any = None
+    material: MaterialEntry | None = None
     support: tuple[SupportTable, ...] = ()
     model: ModelTable = ModelTable()
-    target: dict[str, Any] | None = None
-    design: dict[str, Any] | None = None
+    target: TargetSpec | None = None
+    design: DesignTable = DesignTable()
 
     @model_validator(mode="after")
     def _one_part(self) -> PartFile:
@@ -286,6 +434,7 @@ class PartFile(BaseModel):
         for i, s in enumerate(self.support):
             if s.at > length * (1 + 1e-9):
                 raise ValueError(f"support[{i}] at {s.at * 1e3:g} mm lies beyond the part")
+        _check_design(self.design, self.bar or self.tube or self.string)
         return self
 
     @property
@@ -297,13 +446,23 @@ class PartFile(BaseModel):
         return (self.bar or self.tube or self.string).length
 
     def material_spec(self, base_dir: Path | None = None) -> MaterialSpec | None:
+        """The resolved material; a relative material file is looked for beside the part
+        file first (``base_dir``), then in the working folder."""
         if self.material is None:
             return None
         value = self.material
-        if isinstance(value, str) and base_dir is not None and value.endswith(".toml"):
+        if isinstance(value, Path) and base_dir is not None and not value.is_absolute():
             candidate = base_dir / value
-            value = str(candidate) if candidate.exists() else value
+            value = candidate if candidate.exists() else value
         return resolve_material(value)
+
+    def material_value(self) -> str | dict[str, Any] | None:
+        """The material entry as written to a part file (None: a string without one)."""
+        return None if self.material is None else material_value(self.material)
+
+    def target_value(self) -> dict[str, Any] | None:
+        """The [target] table as the user gave it (defaults left out), for writing back."""
+        return None if self.target is None else self.target.model_dump(exclude_unset=True)
 
     def to_part(self, base_dir: Path | None = None) -> Bar | Tube | String:
         """The forward model's immutable part, in SI units."""
@@ -356,7 +515,7 @@ def load_part(path: str | Path) -> tuple[PartFile, Path]:
     Returns the validated part and the folder it came from (for relative material paths).
     """
     path = Path(path)
-    text = path.read_text(encoding="utf-8")
+    text = read_text_input(path)
     if path.suffix.lower() == ".json":
         try:
             raw = json.loads(text)

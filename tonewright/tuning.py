@@ -45,7 +45,7 @@ from tonewright.acoustics.pitch import (
     stretch_cents,
     temperature_correction_cents,
 )
-from tonewright.errors import InputError, from_validation_error
+from tonewright.errors import InputError, from_validation_error, read_text_input
 from tonewright.targets import targets_dir
 
 __all__ = [
@@ -151,7 +151,7 @@ def _is_path(name_or_path: str | Path) -> bool:
 @cache
 def _read_profile(path: Path) -> TargetProfile:
     try:
-        raw = tomllib.loads(path.read_text(encoding="utf-8"))
+        raw = tomllib.loads(read_text_input(path))
     except tomllib.TOMLDecodeError as exc:
         raise InputError(f"{path}: not valid TOML ({exc})") from None
     try:

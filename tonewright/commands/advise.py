@@ -15,7 +15,6 @@ from typing import Annotated, Any
 
 import numpy as np
 import typer
-from pydantic import ValidationError
 from rich import box
 from rich.console import Console
 from rich.table import Table
@@ -23,13 +22,12 @@ from rich.table import Table
 from tonewright.advise import CENTS_PER_LN, Advice, Step, advise
 from tonewright.audio import read_tap
 from tonewright.cli_support import atomic_write_bytes, guarded, parse_partials
-from tonewright.design import DesignTable
-from tonewright.errors import InputError, from_validation_error
+from tonewright.errors import InputError
 from tonewright.forward import Bar, Material
 from tonewright.optimizer import Goal
 from tonewright.partfile import PartFile, load_part
 from tonewright.tap import find_partials
-from tonewright.tuning import parse_target, resolve
+from tonewright.tuning import resolve
 
 __all__ = ["CAUTION", "advice_payload", "goals_of", "map_figure", "register"]
 
@@ -49,7 +47,7 @@ def goals_of(part_file: PartFile, base: Path | None) -> tuple[Goal, ...]:
         raise InputError("the part file has no [target] table: say what to tune to")
     spec = part_file.material_spec(base)
     coeff = spec.temp_coeff_cents_per_K if spec is not None else None
-    target = resolve(parse_target(part_file.target), material_temp_coeff=coeff)
+    target = resolve(part_file.target, material_temp_coeff=coeff)
     if target.kind == "strike":
         raise InputError(
             f"target.profile {target.name!r} is a strike-note target (chimes, tubes); advise "
@@ -67,10 +65,7 @@ def _min_thickness(part_file: PartFile, option_mm: float | None) -> float:
                 f"{t0 * 1e3:g} mm"
             )
         return option_mm * 1e-3
-    try:
-        table = DesignTable.model_validate(part_file.design or {})
-    except ValidationError as exc:
-        raise from_validation_error(exc, "design") from None
+    table = part_file.design
     value = table.min_thickness if table.min_thickness is not None else DEFAULT_MIN_SHARE * t0
     if value >= t0:
         raise InputError(

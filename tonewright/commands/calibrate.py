@@ -26,7 +26,7 @@ from tonewright.calibrate import CENTS_PER_LN, Calibration, calibrate_bar
 from tonewright.cli_support import atomic_write_text, guarded, parse_partials
 from tonewright.errors import InputError
 from tonewright.forward.geometry import Bar, constant
-from tonewright.materials import MaterialSpec, list_materials, load_material
+from tonewright.materials import MaterialSpec, MaterialTable, list_materials, load_material
 from tonewright.partfile import load_part
 from tonewright.tap import find_partials
 from tonewright.units import parse_length
@@ -106,8 +106,8 @@ def blank_from_part_file(path: Path, material: str | None) -> Blank:
         raw = part_file.material
         if isinstance(raw, str) and raw in list_materials():
             base = raw
-        elif isinstance(raw, dict) and isinstance(raw.get("base"), str):
-            base = raw["base"]
+        elif isinstance(raw, MaterialTable) and raw.base is not None:
+            base = raw.base
         else:
             base = None
     volume = _volume(table.length, table.width, table.thickness, [h.diameter for h in table.holes])

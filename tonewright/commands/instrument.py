@@ -50,7 +50,6 @@ from tonewright.cli_support import atomic_write_bytes, atomic_write_text, guarde
 from tonewright.commands.design import OUTPUTS as DESIGN_OUTPUTS
 from tonewright.commands.design import UNWANTED_CAVEAT, write_design
 from tonewright.commands.shop import shop_part_from
-from tonewright.design import DesignTable
 from tonewright.errors import InputError
 from tonewright.instrument import (
     BarPlan,
@@ -140,7 +139,7 @@ def bar_fingerprint(
         "tool": f"tonewright {tonewright.__version__}",
         "part": part,
         # defaults included, so that a changed default redoes the bar
-        "design": DesignTable.model_validate(bar.part["design"]).model_dump(mode="json"),
+        "design": bar.design.model_dump(mode="json"),
         "material": _material_record(material),
         "target": [
             [p.family, p.order, p.f_hz, p.tolerance_cents, p.weight] for p in bar.target.partials
@@ -189,6 +188,7 @@ class _Job:
     fidelity: str | None
     attempts: int
     start_from: str | None = None  # folder of the neighbour whose design this one starts from
+    seed: int = 1  # the bar's design.seed: the first of the seeds tried
 
 
 def _worker_init() -> None:
@@ -251,7 +251,7 @@ def _design_with_restarts(blank: Path, folder: Path, job: _Job) -> None:
     attempt polishes the neighbour's design first (``tonewright.scheduling``). A new seed
     starts the global search elsewhere, which is what an evolution strategy stuck in a local
     minimum needs."""
-    seed0 = DesignTable.model_validate(job.part["design"]).seed
+    seed0 = job.seed
     start = _neighbour_start(job)
     for stale in folder.glob(".attempt-*"):  # left by a run that was stopped
         _clear_dir(stale)
@@ -657,6 +657,7 @@ def run_instrument(
                     shop_fp=sfp,
                     fidelity=fidelity,
                     attempts=plan.attempts,
+                    seed=b.design.seed,
                     start_from=None
                     if parent is None
                     else str(out / BARS_DIR / plan.bars[parent].note),

@@ -19,13 +19,12 @@ from rich.table import Table
 
 from tonewright.acoustics.pitch import critical_bandwidth_hz
 from tonewright.cli_support import guarded
-from tonewright.design import DesignTable
 from tonewright.errors import InputError
 from tonewright.fidelity import COARSE_SOLID, check_bar, top_face_nodes
 from tonewright.forward import Bar, solve
 from tonewright.forward.solid import SolidMesh, solid_modes
 from tonewright.partfile import load_part
-from tonewright.tuning import parse_target, resolve
+from tonewright.tuning import resolve
 
 __all__ = ["register", "verify_part"]
 
@@ -39,13 +38,13 @@ def verify_part(file: Path, mesh: str = "standard") -> dict:
     if not isinstance(part, Bar):
         raise InputError("verify: the 3D model is for bars; tubes and strings use 'modes'")
     check_bar(part)
-    table = DesignTable.model_validate(part_file.design or {})
+    table = part_file.design
     spec = part_file.material_spec(base)
     material = spec.to_solid(table.thickness_axis)
     beam = solve(part, {"bending": 6, "lateral": 3, "torsion": 4, "axial": 1}, tol_cents=0.01)
     targets = []
     if part_file.target is not None:
-        resolved = resolve(parse_target(part_file.target), spec.temp_coeff_cents_per_K)
+        resolved = resolve(part_file.target, spec.temp_coeff_cents_per_K)
         targets = [p for p in resolved.partials if p.family != "strike"]
     top = 1.2 * (max(p.f_hz for p in targets) if targets else beam.frequency("bending", 4))
     bar = part_file.bar
