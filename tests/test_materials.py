@@ -338,3 +338,47 @@ def test_material_file_not_utf8(tmp_path):
     path.write_bytes('name = "Érable"\nE = 12\ndensity = 700\n'.encode("latin-1"))
     with pytest.raises(InputError, match=r"board\.toml: not UTF-8 text \(byte 0xc9 on line 1\)"):
         load_material_file(path)
+
+
+# ---------------------------------------------------------------------------------------------
+# The full orthotropic set in a [material] table
+def _nine(spec) -> dict[str, float]:
+    o = spec.orthotropic
+    moduli = {k: getattr(o, k) / GPA for k in ("E_L", "E_R", "E_T", "G_LR", "G_LT", "G_RT")}
+    return {**moduli, **{k: getattr(o, k) for k in ("nu_LR", "nu_LT", "nu_RT")}}
+
+
+def test_full_orthotropic_table_gives_the_same_solid_as_the_library_wood():
+    maple = load_material("sugar-maple")
+    table = MaterialTable(**_nine(maple), density=maple.rho).to_spec()
+    for axis in ("T", "R"):
+        np.testing.assert_allclose(
+            stiffness_matrix(table.to_solid(axis)),
+            stiffness_matrix(maple.to_solid(axis)),
+            rtol=1e-12,
+        )
+    # the beam takes E_L and G_LT, and the width-plane shear ratio G_LR / G_LT
+    beam = table.to_beam()
+    assert beam.E == pytest.approx(maple.orthotropic.E_L)
+    assert beam.G == pytest.approx(maple.orthotropic.G_LT)
+    assert beam.shear_ratio == pytest.approx(maple.orthotropic.G_LR / maple.orthotropic.G_LT)
+    assert table.kind == "wood"
+
+
+@pytest.mark.parametrize(
+    ("change", "fragment"),
+    [
+        ({"E_R": None}, "missing E_R"),
+        ({"E": 12.0}, "not both"),
+        ({"base": "sugar-maple"}, "not both"),
+        ({"density": None}, "give density"),
+        ({"G_LT": 950.0}, "G_LT = 950.0 is outside"),
+        ({"nu_LR": 1.4, "nu_LT": 1.4, "nu_RT": 1.4}, "indefinite"),
+    ],
+)
+def test_bad_orthotropic_tables(change, fragment):
+    maple = load_material("sugar-maple")
+    table = {**_nine(maple), "density": maple.rho, **change}
+    table = {k: v for k, v in table.items() if v is not None}
+    with pytest.raises(InputError, match=re.escape(fragment)):
+        resolve_material(table, where="material")

@@ -255,6 +255,9 @@ def _in_range(name: str, value: float | None, bounds: tuple[float, float], unit:
         raise ValueError(f"{name} = {value} is outside {lo}..{hi} {unit}; {name} is in {unit}")
 
 
+_ORTHOTROPIC_KEYS = ("E_L", "E_R", "E_T", "G_LR", "G_LT", "G_RT", "nu_LR", "nu_LT", "nu_RT")
+
+
 class MaterialTable(BaseModel):
     """An inline ``[material]`` table of a part file (moduli in GPa, density in kg/m^3).
 
@@ -263,6 +266,9 @@ class MaterialTable(BaseModel):
     With ``base`` (a library name): missing values come from the base, missing moduli scaled to
     keep the base's ratios (see the module docstring); ``poisson`` then sets the beam's Poisson
     ratio only, the base's orthotropic Poisson ratios stay.
+    Or the full orthotropic set of a wood: ``E_L, E_R, E_T, G_LR, G_LT, G_RT`` (GPa) and
+    ``nu_LR, nu_LT, nu_RT`` with ``density`` (and no ``E``, ``G``, ``poisson`` or ``base``);
+    which of R and T lies through the bar's thickness is ``[design] thickness_axis``.
     """
 
     model_config = ConfigDict(extra="forbid", frozen=True)
@@ -273,12 +279,46 @@ class MaterialTable(BaseModel):
     poisson: float | None = Field(default=None, gt=-1.0, lt=0.5)
     loss_factor: float | None = Field(default=None, ge=0.0, lt=1.0)
     base: str | None = None
+    # the full orthotropic set of a wood (GPa; Poisson ratios in the Wood Handbook convention)
+    E_L: float | None = Field(default=None, gt=0, allow_inf_nan=False)
+    E_R: float | None = Field(default=None, gt=0, allow_inf_nan=False)
+    E_T: float | None = Field(default=None, gt=0, allow_inf_nan=False)
+    G_LR: float | None = Field(default=None, gt=0, allow_inf_nan=False)
+    G_LT: float | None = Field(default=None, gt=0, allow_inf_nan=False)
+    G_RT: float | None = Field(default=None, gt=0, allow_inf_nan=False)
+    nu_LR: float | None = Field(default=None, gt=-1.0, lt=1.5, allow_inf_nan=False)
+    nu_LT: float | None = Field(default=None, gt=-1.0, lt=1.5, allow_inf_nan=False)
+    nu_RT: float | None = Field(default=None, gt=-1.0, lt=1.5, allow_inf_nan=False)
 
     @model_validator(mode="after")
     def _complete(self) -> MaterialTable:
         _in_range("E", self.E, _E_GPA_RANGE, "GPa")
         _in_range("G", self.G, _G_GPA_RANGE, "GPa")
         _in_range("density", self.density, _DENSITY_RANGE, "kg/m^3")
+        given = [k for k in _ORTHOTROPIC_KEYS if getattr(self, k) is not None]
+        if given:
+            missing = [k for k in _ORTHOTROPIC_KEYS if k not in given]
+            if missing:
+                raise ValueError(
+                    f"the orthotropic set needs all nine constants; missing {', '.join(missing)}"
+                )
+            for k in ("E_L", "E_R", "E_T"):
+                _in_range(k, getattr(self, k), _E_GPA_RANGE, "GPa")
+            for k in ("G_LR", "G_LT", "G_RT"):
+                _in_range(k, getattr(self, k), _G_GPA_RANGE, "GPa")
+            clash = [k for k in ("E", "G", "poisson", "base") if getattr(self, k) is not None]
+            if clash:
+                raise ValueError(
+                    f"give either the nine orthotropic constants or {', '.join(clash)}, not both"
+                    " (E is E_L, the beam's G is G_LT)"
+                )
+            if self.density is None:
+                raise ValueError("give density (kg/m^3) with the orthotropic constants")
+            try:
+                self.orthotropic_constants()
+            except ValueError as exc:
+                raise ValueError(str(exc).removeprefix("material ")) from None
+            return self
         if self.base is None:
             missing = [k for k in ("E", "density") if getattr(self, k) is None]
             if missing:
@@ -290,8 +330,33 @@ class MaterialTable(BaseModel):
             )
         return self
 
+    def orthotropic_constants(self) -> OrthotropicConstants | None:
+        """The nine constants in SI (Pa), or None when the table does not give them."""
+        if self.E_L is None:
+            return None
+        return OrthotropicConstants(
+            *(getattr(self, k) * GPA for k in _ORTHOTROPIC_KEYS[:6]),
+            *(getattr(self, k) for k in _ORTHOTROPIC_KEYS[6:]),
+        )
+
     def to_spec(self, key: str = "inline", name: str | None = None) -> MaterialSpec:
         """Resolve against the base (if any) into SI values."""
+        ortho = self.orthotropic_constants()
+        if ortho is not None:
+            return MaterialSpec(
+                key=key,
+                name=name or "custom wood",
+                kind="wood",
+                E=ortho.E_L,
+                G=ortho.G_LT,  # vertical bending of a quarter-sawn bar shears in the LT plane
+                rho=self.density,
+                nu=ortho.nu_LT,
+                loss_factor=DEFAULT_LOSS_FACTOR if self.loss_factor is None else self.loss_factor,
+                orthotropic=ortho,
+                sources=MappingProxyType(
+                    {k: "given in the part or material file" for k in _ORTHOTROPIC_KEYS}
+                ),
+            )
         if self.base is None:
             E = self.E * GPA
             nu = DEFAULT_POISSON if self.poisson is None else self.poisson
