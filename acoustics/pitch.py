@@ -48,6 +48,7 @@ from numpy.typing import ArrayLike
 from tonewright.errors import InputError
 
 __all__ = [
+    "CENTS_PER_LN",
     "cents",
     "cents_to_ratio",
     "critical_bandwidth_hz",
@@ -62,6 +63,9 @@ __all__ = [
 ]
 
 _CENTS_PER_OCTAVE = 1200.0
+# cents per unit of natural logarithm: c = CENTS_PER_LN ln(f / f_ref) = 1200 log2(f / f_ref);
+# the form for derivatives, d c / d ln f = CENTS_PER_LN
+CENTS_PER_LN = _CENTS_PER_OCTAVE / math.log(2.0)
 _A4_MIDI = 69
 
 _SEMITONE = {"C": 0, "D": 2, "E": 4, "F": 5, "G": 7, "A": 9, "B": 11}

@@ -11,8 +11,7 @@ from __future__ import annotations
 import time
 
 import numpy as np
-
-from tonewright.tap import find_partials
+from tonewright.acoustics.tap import find_partials
 
 SCENARIOS = {
     "5 partials 110 Hz-4.9 kHz, 44.1 kHz, 2 s": (

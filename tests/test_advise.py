@@ -24,14 +24,15 @@ import numpy as np
 import pytest
 import tomli_w
 import typer
+from tonewright.acoustics.pitch import CENTS_PER_LN
+from tonewright.acoustics.synth import modal_strike
 from tonewright.forward import Bar, Material, PiecewiseLinear, constant, solve
 from tonewright.optimizer import Goal
-from typer.testing import CliRunner
-
-from tonewright.advise import (
-    CENTS_PER_LN,
+from tonewright.optimizer.cutplan import (
     EDGE_RAMP,
+    AdviceOptions,
     Cut,
+    CutLimits,
     advise,
     anchored,
     apply_cut,
@@ -43,11 +44,12 @@ from tonewright.advise import (
     trim_ends,
     tuning_map,
 )
+from typer.testing import CliRunner
+
 from tonewright.audio import write_wav
 from tonewright.commands.advise import register
 from tonewright.errors import InputError
 from tonewright.partfile import load_part
-from tonewright.synth import modal_strike
 
 ROOT = Path(__file__).resolve().parents[1]
 EXAMPLE = ROOT / "examples" / "workshop-half-finished.toml"
@@ -66,6 +68,8 @@ ARCH = Bar(
     ROSEWOOD,
 )
 TOL = np.array([1.0, 3.0, 5.0])
+LIMITS = CutLimits(min_thickness=0.004, width=0.02, max_step_depth=5e-4)
+ONE_STEP = AdviceOptions(LIMITS, steps=1)
 
 
 def _app() -> typer.Typer:
@@ -221,7 +225,7 @@ def _check_plan_rules(plan, bar, e0, max_depth, min_thickness):
 def test_plan_under_shoots_and_respects_the_rules():
     e0 = np.array([40.0, 30.0, 15.0])
     goals, f = _goals_offset(ARCH, e0)
-    plan = plan_cuts(ARCH, goals, f, width=0.02, max_step_depth=5e-4, min_thickness=0.004)
+    plan = plan_cuts(ARCH, goals, f, LIMITS)
     assert plan.status == 1 and len(plan.steps) == 3
     assert "under-shoots on purpose" in plan.notes[0]
     cut_bar = _check_plan_rules(plan, ARCH, e0, 5e-4, 0.004)
@@ -235,9 +239,7 @@ def test_plan_under_shoots_and_respects_the_rules():
 
 def test_one_sided_cuts_are_single_windows():
     goals, f = _goals_offset(ARCH, np.array([40.0, 30.0, 15.0]))
-    plan = plan_cuts(
-        ARCH, goals, f, width=0.02, max_step_depth=5e-4, min_thickness=0.004, symmetric=False
-    )
+    plan = plan_cuts(ARCH, goals, f, replace(LIMITS, symmetric=False))
     assert plan.steps and all(len(s.cut.windows_m) == 1 for s in plan.steps)
     _check_plan_rules(plan, ARCH, np.array([40.0, 30.0, 15.0]), 5e-4, 0.004)
 
@@ -245,7 +247,7 @@ def test_one_sided_cuts_are_single_windows():
 def test_minimum_thickness_is_never_crossed():
     goals, f = _goals_offset(ARCH, np.array([40.0, 30.0, 15.0]))
     h_min = 0.008 - 5e-5  # 0.05 mm of room in the flat of the arch
-    plan = plan_cuts(ARCH, goals, f, width=0.02, max_step_depth=5e-4, min_thickness=h_min)
+    plan = plan_cuts(ARCH, goals, f, replace(LIMITS, min_thickness=h_min))
     assert plan.steps
     current = ARCH
     for step in plan.steps:
@@ -257,15 +259,14 @@ def test_minimum_thickness_is_never_crossed():
 
 def test_in_tune_needs_no_cut():
     goals, f = _goals_offset(ARCH, np.array([0.3, -1.0, 2.0]))
-    plan = plan_cuts(ARCH, goals, f, width=0.02, max_step_depth=5e-4, min_thickness=0.004)
+    plan = plan_cuts(ARCH, goals, f, LIMITS)
     assert plan.status == 0 and not plan.steps and plan.shortening is None
 
 
 def test_a_reading_just_inside_the_band_is_not_done_when_uncertain():
     goals, f = _goals_offset(ARCH, np.array([0.8, 0.0, 0.0]))  # tolerance 1 on the first
-    kw = {"width": 0.02, "max_step_depth": 5e-4, "min_thickness": 0.004, "steps": 1}
-    assert plan_cuts(ARCH, goals, f, **kw).status == 0
-    plan = plan_cuts(ARCH, goals, f, uncertainty_cents=[0.2, 0.2, 0.2], **kw)
+    assert plan_cuts(ARCH, goals, f, LIMITS, steps=1).status == 0
+    plan = plan_cuts(ARCH, goals, f, LIMITS, steps=1, uncertainty_cents=[0.2, 0.2, 0.2])
     # 0.8 + 2 x 0.2 > 1: a light step toward the middle of the band, still never below it
     assert plan.status == 1
     assert 0 <= plan.steps[0].predicted_cents[0] < 0.8
@@ -275,7 +276,7 @@ def test_a_reading_just_inside_the_band_is_not_done_when_uncertain():
 def test_flat_fundamental_gets_no_arch_cut_and_a_shortening_option():
     e0 = np.array([-20.0, -15.0, -12.0])
     goals, f = _goals_offset(ARCH, e0)
-    plan = plan_cuts(ARCH, goals, f, width=0.02, max_step_depth=5e-4, min_thickness=0.004)
+    plan = plan_cuts(ARCH, goals, f, LIMITS)
     assert plan.flat == ("bending 1", "bending 2", "bending 3")
     assert any("only removal at the very ends or shortening" in n for n in plan.notes)
     # steps, if any, only raise: no partial ever goes flatter
@@ -313,7 +314,7 @@ def test_advise_fits_the_material_on_the_cut_bar_and_identifies_the_partials():
         r.frequency("bending", 2),
     ]
     goals, _ = _goals_offset(ARCH, np.array([30.0, 20.0, 10.0]))
-    adv = advise(ARCH, goals, measured, min_thickness=0.004, steps=1)
+    adv = advise(ARCH, goals, measured, ONE_STEP)
     labels = {p.label for p in adv.calibration.partials}
     assert labels == {"bending 1", "bending 2", "bending 3", "torsion 1", "lateral 1"}
     # the fit recovers the invented material: model and data differ by 0.01-cent solves only
@@ -326,7 +327,7 @@ def test_advise_fits_the_material_on_the_cut_bar_and_identifies_the_partials():
 
 def test_a_goal_partial_not_measured_comes_from_the_fitted_model():
     goals, f = _goals_offset(ARCH, np.array([30.0, 20.0, 10.0]))
-    adv = advise(ARCH, goals, f[:2], min_thickness=0.004, steps=1)
+    adv = advise(ARCH, goals, f[:2], ONE_STEP)
     assert adv.measured == (True, True, False)
     # same material as the library: the fitted model predicts the third partial
     assert adv.now_hz[2] == pytest.approx(f[2], rel=2e-5)  # 0.03 cent: solver accuracy
@@ -334,7 +335,7 @@ def test_a_goal_partial_not_measured_comes_from_the_fitted_model():
 
 def test_strike_goals_are_refused():
     with pytest.raises(InputError, match="strike"):
-        advise(ARCH, [Goal("strike", 1, 300.0)], [300.0], min_thickness=0.004)
+        advise(ARCH, [Goal("strike", 1, 300.0)], [300.0], AdviceOptions(LIMITS))
 
 
 # ---------------------------------------------------------------------------------------------

@@ -14,21 +14,21 @@ import numpy as np
 import pytest
 import soundfile as sf
 import typer
+from tonewright.acoustics.pitch import CENTS_PER_LN
+from tonewright.acoustics.synth import decay_from_loss_factor, modal_strike
 from tonewright.forward import Bar, Material, constant, solve
-from typer.testing import CliRunner
-
-from tonewright.calibrate import (
-    CENTS_PER_LN,
+from tonewright.optimizer.calibration import (
     calibrate_bar,
     fit_moduli,
     loss_factor_from_decay,
     moduli_model,
 )
+from typer.testing import CliRunner
+
 from tonewright.commands.calibrate import register
 from tonewright.errors import InputError
 from tonewright.materials import load_material, load_material_file
 from tonewright.partfile import load_part
-from tonewright.synth import decay_from_loss_factor, modal_strike
 
 app = typer.Typer()
 register(app)

@@ -8,12 +8,12 @@ import pytest
 import soundfile as sf
 import typer
 from tonewright.acoustics.pitch import strike_note_hz
+from tonewright.acoustics.synth import modal_strike
 from typer.testing import CliRunner
 
 from tonewright.audio import read_tap, read_wav, to_mono, write_wav
 from tonewright.commands.listen import register
 from tonewright.errors import InputError
-from tonewright.synth import modal_strike
 
 app = typer.Typer()
 register(app)

@@ -12,9 +12,9 @@ import numpy as np
 import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
+from tonewright.acoustics.tap import damped_sinusoid_dft, find_partials
 
 from tonewright.errors import InputError
-from tonewright.tap import damped_sinusoid_dft, find_partials
 
 CI = settings(deadline=None, derandomize=True, database=None, max_examples=12)
 
