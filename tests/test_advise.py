@@ -279,10 +279,15 @@ def test_flat_fundamental_gets_no_arch_cut_and_a_shortening_option():
     plan = plan_cuts(ARCH, goals, f, LIMITS)
     assert plan.flat == ("bending 1", "bending 2", "bending 3")
     assert any("only removal at the very ends or shortening" in n for n in plan.notes)
-    # steps, if any, only raise: no partial ever goes flatter
+    # every partial is flat, and removal at the very ends raises them (trade, common practice,
+    # no source): the plan has steps there, and no partial ever goes flatter
+    assert plan.status == 1 and len(plan.steps) >= 1
     e = e0
     for step in plan.steps:
         assert np.all(step.predicted_cents >= e - 0.011)
+        assert np.any(step.predicted_cents > e + 0.011)  # the step does raise something
+        for a, b in step.cut.windows_m:
+            assert b <= 0.1 * L or a >= 0.9 * L  # at the ends, beyond the outer nodes
         e = step.predicted_cents
     short = plan.shortening
     assert short is not None
@@ -497,6 +502,42 @@ BAR_TABLE = {
         (
             {
                 "material": "honduras-rosewood",
+                "bar": BAR_TABLE,
+                "target": {"fundamental": "C4", "ratios": [1, 4]},
+            },
+            ["--partials", "262,,1049"],
+            "--partials '262,,1049': give frequencies in Hz separated by single commas",
+        ),
+        (
+            {
+                "material": "honduras-rosewood",
+                "bar": BAR_TABLE,
+                "target": {"fundamental": "C4", "ratios": [1, 4]},
+            },
+            ["--partials", "262;1049"],
+            "--partials '262;1049': give frequencies in Hz separated by single commas",
+        ),
+        (
+            {
+                "material": "honduras-rosewood",
+                "bar": BAR_TABLE,
+                "target": {"fundamental": "C4", "ratios": [1, 4]},
+            },
+            ["--partials", "262, 1049;2617"],
+            "--partials '262, 1049;2617': give frequencies in Hz separated by single commas",
+        ),
+        (
+            {
+                "material": "honduras-rosewood",
+                "bar": BAR_TABLE,
+                "target": {"fundamental": "C4", "ratios": [1, 4]},
+            },
+            ["--partials", "262 1049"],
+            "--partials '262 1049': give frequencies in Hz separated by single commas",
+        ),
+        (
+            {
+                "material": "honduras-rosewood",
                 "bar": {**BAR_TABLE, "profile": [[0, 20], [190, 21], [380, 20]]},
                 "target": {"fundamental": "C4", "ratios": [1, 4]},
             },
@@ -562,6 +603,10 @@ BAR_TABLE = {
         "no-target",
         "bad-partials",
         "negative-partials",
+        "doubled-comma",
+        "semicolons",
+        "mixed-separators",
+        "spaces-only",
         "thicker-than-blank",
         "step-depth",
         "tool-width",
@@ -577,3 +622,4 @@ def test_bad_input_exits_2_with_one_line(tmp_path, raw, args, message):
     assert result.exit_code == 2, result.output
     lines = result.stderr.strip().splitlines()
     assert len(lines) == 1 and lines[0].startswith("error: ") and message in lines[0]
+    assert "Traceback" not in result.output

@@ -21,16 +21,15 @@ from rich import box
 from rich.console import Console
 from rich.table import Table
 
-from tonewright.bench import ADVICE_CAUTION, AdviseRequest, advise_bar
+from tonewright.bench import AdviseRequest, advise_bar
 from tonewright.cli_support import atomic_write_bytes, guarded
 from tonewright.design import DesignTable
 from tonewright.errors import InputError, from_validation_error
 from tonewright.optimizer import Advice
 from tonewright.partfile import PartFile, load_part
 
-__all__ = ["CAUTION", "map_figure", "register"]
+__all__ = ["map_figure", "register"]
 
-CAUTION = ADVICE_CAUTION
 DEFAULT_MIN_SHARE = 0.2  # minimum thickness, as a share of the blank, when the file gives none
 PALETTE = ("#1b6f8a", "#c0392b", "#7b4fa0", "#5a8f29", "#b5651d", "#444444")
 
