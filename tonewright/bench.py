@@ -33,7 +33,7 @@ from tonewright.acoustics.pitch import strike_note_hz
 from tonewright.audio import TapRecording, read_tap
 from tonewright.cli_support import parse_partials
 from tonewright.errors import InputError
-from tonewright.forward import Bar, ModalResult, Part, String, constant, solve
+from tonewright.forward import Bar, Material, ModalResult, Part, String, constant, solve
 from tonewright.materials import MaterialSpec, list_materials, load_material
 from tonewright.optimizer import (
     Advice,
@@ -61,10 +61,12 @@ __all__ = [
     "SoundReport",
     "SoundRequest",
     "TapReport",
+    "advice_payload",
     "advise_bar",
     "blank_from_options",
     "blank_from_part_file",
     "calibrate_blank",
+    "calibration_payload",
     "goals_of",
     "listen_to_tap",
     "mallet_contact_s",
@@ -552,7 +554,7 @@ def _step_json(i: int, step: Step, goals) -> dict[str, Any]:
 
 
 def advice_payload(
-    advice: Advice, start, title: str, min_thickness: float, warnings: list[str]
+    advice: Advice, start: Material, title: str, min_thickness: float, warnings: list[str]
 ) -> dict[str, Any]:
     """The JSON form of the advice (mm, Hz, cents, GPa); ``start`` is the file's material."""
     cal, plan, goals = advice.calibration, advice.plan, advice.goals
