@@ -26,7 +26,15 @@ import tomli_w
 import typer
 from tonewright.acoustics.pitch import CENTS_PER_LN
 from tonewright.acoustics.synth import modal_strike
-from tonewright.forward import Bar, Material, PiecewiseLinear, constant, solve
+from tonewright.forward import (
+    Bar,
+    Material,
+    PiecewiseLinear,
+    constant,
+    modes_on_mesh,
+    solve,
+    thickness_derivatives,
+)
 from tonewright.optimizer import Goal
 from tonewright.optimizer.cutplan import (
     EDGE_RAMP,
@@ -200,6 +208,31 @@ def test_map_makes_sense_at_the_bench(bar):
     assert abs(S[1, centre]) < 0.15 * abs(S[0, centre])
     # mirror symmetry of a symmetric bar (the mesh is not exactly mirrored: 1e-6 relative)
     assert S == pytest.approx(S[:, ::-1], rel=1e-6, abs=1e-9)
+
+
+def test_thickness_derivatives_follow_the_rectangle_formulas():
+    # Rectangle b x h without holes: I = b h^3 / 12, A = b h (Gere, J.M. & Goodno, B.J.,
+    # *Mechanics of Materials*, 8th ed., 2013, App. E), so d(EI)/dh = E b h^2 / 4 and
+    # d(rho A)/dh = rho b. The complex step is exact to rounding: 1e-12 relative.
+    x = np.linspace(0.0, L, 9)
+    h = ARCH.thickness(x)
+    d = thickness_derivatives(ARCH, x)
+    assert d["EIy"] == pytest.approx(ROSEWOOD.E * 0.05 * h**2 / 4.0, rel=1e-12)
+    assert d["rhoA"] == pytest.approx(ROSEWOOD.rho * 0.05 * np.ones_like(x), rel=1e-12)
+
+
+def test_extra_quadrature_breakpoints_leave_the_modes_unchanged():
+    # Structural: splitting the quadrature inside elements integrates the same piecewise
+    # polynomials, so the modes move by rounding only; and they match forward.solve (0.01 cent
+    # each, both meshes converged).
+    counts = {"bending": 3}
+    plain = modes_on_mesh(ARCH, counts, elements=16)
+    split = modes_on_mesh(ARCH, counts, elements=16, extra_breakpoints=[0.1234, 0.2, 0.3011])
+    assert split.x.size > plain.x.size
+    lam_plain, lam_split = plain.families["bending"].lam, split.families["bending"].lam
+    assert lam_split == pytest.approx(lam_plain, rel=1e-9)
+    f = np.sqrt(lam_split) / (2.0 * np.pi)
+    assert CENTS_PER_LN * np.log(f / _bending(ARCH)) == pytest.approx(np.zeros(3), abs=0.02)
 
 
 # ---------------------------------------------------------------------------------------------
