@@ -65,6 +65,9 @@ __all__ = [
 ]
 
 _CENTS_PER_OCTAVE = 1200.0
+# cents per unit of natural logarithm: c = CENTS_PER_LN ln(f / f_ref) = 1200 log2(f / f_ref);
+# the form for derivatives, d c / d ln f = CENTS_PER_LN
+CENTS_PER_LN = _CENTS_PER_OCTAVE / math.log(2.0)
 _A4_MIDI = 69
 
 CENTS_PER_LN = float(_CENTS_PER_OCTAVE / np.log(2.0))

@@ -11,8 +11,8 @@ from __future__ import annotations
 import time
 
 import numpy as np
-
-from tonewright.tap import find_partials
+from tonewright.acoustics.pitch import CENTS_PER_LN, cents, cents_to_ratio
+from tonewright.acoustics.tap import find_partials
 
 SCENARIOS = {
     "5 partials 110 Hz-4.9 kHz, 44.1 kHz, 2 s": (
@@ -39,14 +39,14 @@ SCENARIOS = {
     "two bars 30 cents apart at 440 Hz, 44.1 kHz, 2 s": (
         44100,
         2.0,
-        [440.0, 440.0 * 2 ** (30 / 1200)],
+        [440.0, 440.0 * float(cents_to_ratio(30.0))],
         [1, 0.5],
         [1.0, 0.8],
     ),
     "two bars a semitone apart at 110 Hz, 44.1 kHz, 2 s": (
         44100,
         2.0,
-        [110.0, 110.0 * 2 ** (1 / 12)],
+        [110.0, 110.0 * float(cents_to_ratio(100.0))],
         [1, 1],
         [2.0, 2.0],
     ),
@@ -80,9 +80,9 @@ def main(trials: int = 10, snr_db: float = 30.0) -> None:
                 missed += 1
                 continue
             for p, fk, tk in zip(result.partials, f, tau, strict=True):
-                err_c.append(abs(1200 * np.log2(p.frequency_hz / fk)))
+                err_c.append(abs(float(cents(p.frequency_hz, fk))))
                 err_tau.append(abs(p.decay_s / tk - 1))
-                sd_c.append(1200 * p.frequency_uncertainty_hz / (fk * np.log(2)))
+                sd_c.append(CENTS_PER_LN * p.frequency_uncertainty_hz / fk)
         note = f"  ({missed} runs with a wrong count)" if missed else ""
         print(
             f"{name:52s} {max(err_c):11.4f} {max(err_tau):13.2%} {np.median(sd_c):8.4f} "

@@ -20,7 +20,7 @@ mode (the estimate compares degrees on one mesh, so the meshes need not be neste
 
 from __future__ import annotations
 
-from collections.abc import Callable, Mapping
+from collections.abc import Callable, Iterable, Mapping
 from dataclasses import dataclass, field
 
 import numpy as np
@@ -57,15 +57,22 @@ from tonewright.forward.sections import (
 __all__ = [
     "FAMILIES",
     "Discretisation",
+    "FamilyModes",
     "FamilySystem",
+    "MeshModes",
     "ModalResult",
     "Mode",
+    "ModuliSplit",
     "assemble_family",
     "discretise",
     "families_of",
     "lowest_modes",
+    "mass_per_length",
+    "modes_on_mesh",
+    "moduli_split",
     "section_coefficients",
     "solve",
+    "thickness_derivatives",
 ]
 
 FAMILIES = ("bending", "lateral", "torsion", "axial", "transverse")
@@ -583,3 +590,179 @@ def solve(
         degree=degree,
         message=message,
     )
+
+
+# ---------------------------------------------------------------------------------------------
+# Entry points for the inverse problems of the bench (calibration, cut planning, preview)
+#
+# Each is a thin, documented view of the machinery above, so callers outside ``forward``
+# never assemble families or build quadratures themselves.
+
+# d(section coefficient)/dh by the complex step: Im c(h + i s) / s = c'(h) + O(s^2), with no
+# subtractive cancellation, so s can be tiny (Squire, W. & Trapp, G., 1998, "Using complex
+# variables to estimate derivatives of real functions", SIAM Review 40, 110-112).
+_COMPLEX_STEP = 1e-30
+_E_TERMS = ("EIy", "EIz", "EA")  # stiffness coefficients proportional to E
+_G_TERMS = ("kGA", "kGAz", "GJ")  # stiffness coefficients proportional to G
+
+
+def mass_per_length(part: Part, family: str, x: np.ndarray) -> np.ndarray:
+    """Inertia per unit length that weighs the squared displacement of ``family`` at x.
+
+    The kinetic energy of a mode with displacement ``g(x)`` (deflection, twist or stretch)
+    is ``1/2 omega^2 int m(x) g(x)^2 dx`` up to rotary inertia, with ``m = rho A`` for
+    bending, lateral and axial motion, ``rho I_p`` for torsion and ``mu`` for a string, so
+    ``int m g^2 dx`` is the modal mass of that shape.
+    """
+    c = section_coefficients(part, np.asarray(x, dtype=float))
+    if family == "torsion":
+        return c["rhoIp"]
+    if family == "transverse":
+        return c["mu"]
+    return c["rhoA"]
+
+
+def thickness_derivatives(bar: Bar, x: np.ndarray) -> dict[str, np.ndarray]:
+    """d c / d h of every beam coefficient c of ``bar`` at x, h the local thickness.
+
+    Complex step on ``bar_coefficients`` (exact to rounding); the holes stay where they are
+    (their chord and centre height are taken from the bar as it is).
+    """
+    x = np.asarray(x, dtype=float)
+    m = bar.material
+    chord, z = hole_data(bar, x)
+    h = bar.thickness(x) + 1j * _COMPLEX_STEP
+    c = bar_coefficients(bar.width(x), h, chord, z, m.E, m.G, m.rho, m.nu, m.shear_ratio)
+    return {name: np.imag(v) / _COMPLEX_STEP for name, v in c.items()}
+
+
+@dataclass(frozen=True, eq=False)
+class FamilyModes:
+    """The lowest modes of one family on a fixed mesh.
+
+    ``lam`` (omega^2) and ``vectors`` (M-normalised, reduced dofs) from the degree p space,
+    ``lam_lower`` from the nested degree p - 1 space; ``system`` is what
+    ``optimizer.sensitivity.eigenvalue_gradients`` needs for derivatives.
+    """
+
+    system: FamilySystem
+    lam: np.ndarray
+    lam_lower: np.ndarray
+    vectors: np.ndarray
+
+    @property
+    def error_cents(self) -> np.ndarray:
+        """Nested estimate ``600 log2(lam_{p-1} / lam_p)`` (cents) of each mode's error."""
+        n = min(self.lam.size, self.lam_lower.size)
+        return 600.0 * np.log2(self.lam_lower[:n] / self.lam[:n])
+
+
+@dataclass(frozen=True, eq=False)
+class MeshModes:
+    """Modes of several families on one mesh, and the quadrature points ``x`` (m) that
+    coefficient derivatives for ``eigenvalue_gradients`` must be given at."""
+
+    x: np.ndarray
+    n_elements: int
+    degree: int
+    families: Mapping[str, FamilyModes]
+
+
+def modes_on_mesh(
+    part: Part,
+    counts: Mapping[str, int],
+    *,
+    elements: int,
+    degree: int = 8,
+    theory: str = "timoshenko",
+    extra_breakpoints: Iterable[float] = (),
+    eigensolver: EigenSolver = dense_eigh,
+) -> MeshModes:
+    """The lowest ``counts[family]`` modes of each family on the mesh of ``discretise``
+    (at least ``elements`` elements of degree ``degree``).
+
+    ``extra_breakpoints`` split the quadrature further (inside (0, L)), so a coefficient
+    derivative with kinks there (a cut's edges) is integrated exactly; they add no nodes.
+    """
+    disc = discretise(part, elements=elements, degree=degree, theory=theory)
+    extra = np.asarray(list(extra_breakpoints), dtype=float)
+    extra = extra[(extra > 0.0) & (extra < part.length)]
+    if extra.size:
+        holes = tuple((h.x, 0.5 * h.diameter) for h in part.holes) if isinstance(part, Bar) else ()
+        bps = np.unique(np.concatenate([_breakpoints(part), extra]))
+        quad = build_quadrature(disc.edges, bps, holes, degree + 4)
+        disc = Discretisation(quad=quad, degree=degree, theory=theory)
+    coefficients = section_coefficients(part, disc.quad.x)
+    out: dict[str, FamilyModes] = {}
+    for family, count in counts.items():
+        if count <= 0:
+            continue
+        system = assemble_family(part, disc, family, coefficients)
+        lam, vec = lowest_modes(system, count, eigensolver=eigensolver)
+        lam_lo, _ = lowest_modes(
+            system, count, subspace=np.flatnonzero(system.lower), eigensolver=eigensolver
+        )
+        out[family] = FamilyModes(system, lam, lam_lo, vec)
+    return MeshModes(disc.quad.x, disc.n_elements, degree, out)
+
+
+@dataclass(frozen=True, eq=False)
+class ModuliSplit:
+    """One family of a one-material bar with its stiffness split by modulus:
+
+        K(E, G) = (E / E_0) K_E + (G / G_0) K_G + K_supports,   M independent of E and G,
+
+    at the bar's own moduli E_0, G_0 (every stiffness coefficient of a rectangular section is E
+    or G times geometry; support springs add a constant). ``n_rigid`` rigid-body or bounce
+    modes lie at the bottom of the spectrum.
+    """
+
+    family: str
+    K_E: np.ndarray
+    K_G: np.ndarray
+    K_supports: np.ndarray
+    M: np.ndarray
+    n_rigid: int
+
+
+def _keep_stiffness(coefficients: Mapping[str, np.ndarray], keep: tuple[str, ...]) -> dict:
+    """Coefficients with the stiffness terms not in ``keep`` zeroed (mass terms untouched)."""
+    stiffness = set(_E_TERMS) | set(_G_TERMS)
+    return {
+        k: (v if k in keep or k not in stiffness else np.zeros_like(v))
+        for k, v in coefficients.items()
+    }
+
+
+def moduli_split(
+    bar: Bar,
+    families: Iterable[str],
+    *,
+    min_elements: int,
+    degree: int = 8,
+    theory: str = "timoshenko",
+) -> dict[str, ModuliSplit]:
+    """``ModuliSplit`` of each family on the mesh ``solve`` settles on when it reports
+    ``min_elements`` elements (it asks ``discretise`` for 4, 8, 16 ... elements)."""
+    target = 4
+    disc = discretise(bar, elements=target, degree=degree, theory=theory)
+    while disc.n_elements < min_elements:
+        target *= 2
+        disc = discretise(bar, elements=target, degree=degree, theory=theory)
+    coefficients = section_coefficients(bar, disc.quad.x)
+    only_E = _keep_stiffness(coefficients, _E_TERMS)
+    only_G = _keep_stiffness(coefficients, _G_TERMS)
+    out: dict[str, ModuliSplit] = {}
+    for family in families:
+        sys_E = assemble_family(bar, disc, family, only_E)
+        sys_G = assemble_family(bar, disc, family, only_G)
+        K_s = np.diag(sys_E.spring_diag)
+        out[family] = ModuliSplit(
+            family=family,
+            K_E=sys_E.K - K_s,
+            K_G=sys_G.K - K_s,
+            K_supports=K_s,
+            M=sys_E.M,
+            n_rigid=sys_E.n_rigid,
+        )
+    return out

@@ -24,14 +24,23 @@ import numpy as np
 import pytest
 import tomli_w
 import typer
-from tonewright.forward import Bar, Material, PiecewiseLinear, constant, solve
+from tonewright.acoustics.pitch import CENTS_PER_LN
+from tonewright.acoustics.synth import modal_strike
+from tonewright.forward import (
+    Bar,
+    Material,
+    PiecewiseLinear,
+    constant,
+    modes_on_mesh,
+    solve,
+    thickness_derivatives,
+)
 from tonewright.optimizer import Goal
-from typer.testing import CliRunner
-
-from tonewright.advise import (
-    CENTS_PER_LN,
+from tonewright.optimizer.cutplan import (
     EDGE_RAMP,
+    AdviceOptions,
     Cut,
+    CutLimits,
     advise,
     anchored,
     apply_cut,
@@ -43,11 +52,12 @@ from tonewright.advise import (
     trim_ends,
     tuning_map,
 )
+from typer.testing import CliRunner
+
 from tonewright.audio import write_wav
 from tonewright.commands.advise import register
 from tonewright.errors import InputError
 from tonewright.partfile import load_part
-from tonewright.synth import modal_strike
 
 ROOT = Path(__file__).resolve().parents[1]
 EXAMPLE = ROOT / "examples" / "workshop-half-finished.toml"
@@ -66,6 +76,8 @@ ARCH = Bar(
     ROSEWOOD,
 )
 TOL = np.array([1.0, 3.0, 5.0])
+LIMITS = CutLimits(min_thickness=0.004, width=0.02, max_step_depth=5e-4)
+ONE_STEP = AdviceOptions(LIMITS, steps=1)
 
 
 def _app() -> typer.Typer:
@@ -198,6 +210,31 @@ def test_map_makes_sense_at_the_bench(bar):
     assert S == pytest.approx(S[:, ::-1], rel=1e-6, abs=1e-9)
 
 
+def test_thickness_derivatives_follow_the_rectangle_formulas():
+    # Rectangle b x h without holes: I = b h^3 / 12, A = b h (Gere, J.M. & Goodno, B.J.,
+    # *Mechanics of Materials*, 8th ed., 2013, App. E), so d(EI)/dh = E b h^2 / 4 and
+    # d(rho A)/dh = rho b. The complex step is exact to rounding: 1e-12 relative.
+    x = np.linspace(0.0, L, 9)
+    h = ARCH.thickness(x)
+    d = thickness_derivatives(ARCH, x)
+    assert d["EIy"] == pytest.approx(ROSEWOOD.E * 0.05 * h**2 / 4.0, rel=1e-12)
+    assert d["rhoA"] == pytest.approx(ROSEWOOD.rho * 0.05 * np.ones_like(x), rel=1e-12)
+
+
+def test_extra_quadrature_breakpoints_leave_the_modes_unchanged():
+    # Structural: splitting the quadrature inside elements integrates the same piecewise
+    # polynomials, so the modes move by rounding only; and they match forward.solve (0.01 cent
+    # each, both meshes converged).
+    counts = {"bending": 3}
+    plain = modes_on_mesh(ARCH, counts, elements=16)
+    split = modes_on_mesh(ARCH, counts, elements=16, extra_breakpoints=[0.1234, 0.2, 0.3011])
+    assert split.x.size > plain.x.size
+    lam_plain, lam_split = plain.families["bending"].lam, split.families["bending"].lam
+    assert lam_split == pytest.approx(lam_plain, rel=1e-9)
+    f = np.sqrt(lam_split) / (2.0 * np.pi)
+    assert CENTS_PER_LN * np.log(f / _bending(ARCH)) == pytest.approx(np.zeros(3), abs=0.02)
+
+
 # ---------------------------------------------------------------------------------------------
 # Planning
 
@@ -221,7 +258,7 @@ def _check_plan_rules(plan, bar, e0, max_depth, min_thickness):
 def test_plan_under_shoots_and_respects_the_rules():
     e0 = np.array([40.0, 30.0, 15.0])
     goals, f = _goals_offset(ARCH, e0)
-    plan = plan_cuts(ARCH, goals, f, width=0.02, max_step_depth=5e-4, min_thickness=0.004)
+    plan = plan_cuts(ARCH, goals, f, LIMITS)
     assert plan.status == 1 and len(plan.steps) == 3
     assert "under-shoots on purpose" in plan.notes[0]
     cut_bar = _check_plan_rules(plan, ARCH, e0, 5e-4, 0.004)
@@ -235,9 +272,7 @@ def test_plan_under_shoots_and_respects_the_rules():
 
 def test_one_sided_cuts_are_single_windows():
     goals, f = _goals_offset(ARCH, np.array([40.0, 30.0, 15.0]))
-    plan = plan_cuts(
-        ARCH, goals, f, width=0.02, max_step_depth=5e-4, min_thickness=0.004, symmetric=False
-    )
+    plan = plan_cuts(ARCH, goals, f, replace(LIMITS, symmetric=False))
     assert plan.steps and all(len(s.cut.windows_m) == 1 for s in plan.steps)
     _check_plan_rules(plan, ARCH, np.array([40.0, 30.0, 15.0]), 5e-4, 0.004)
 
@@ -245,7 +280,7 @@ def test_one_sided_cuts_are_single_windows():
 def test_minimum_thickness_is_never_crossed():
     goals, f = _goals_offset(ARCH, np.array([40.0, 30.0, 15.0]))
     h_min = 0.008 - 5e-5  # 0.05 mm of room in the flat of the arch
-    plan = plan_cuts(ARCH, goals, f, width=0.02, max_step_depth=5e-4, min_thickness=h_min)
+    plan = plan_cuts(ARCH, goals, f, replace(LIMITS, min_thickness=h_min))
     assert plan.steps
     current = ARCH
     for step in plan.steps:
@@ -257,15 +292,14 @@ def test_minimum_thickness_is_never_crossed():
 
 def test_in_tune_needs_no_cut():
     goals, f = _goals_offset(ARCH, np.array([0.3, -1.0, 2.0]))
-    plan = plan_cuts(ARCH, goals, f, width=0.02, max_step_depth=5e-4, min_thickness=0.004)
+    plan = plan_cuts(ARCH, goals, f, LIMITS)
     assert plan.status == 0 and not plan.steps and plan.shortening is None
 
 
 def test_a_reading_just_inside_the_band_is_not_done_when_uncertain():
     goals, f = _goals_offset(ARCH, np.array([0.8, 0.0, 0.0]))  # tolerance 1 on the first
-    kw = {"width": 0.02, "max_step_depth": 5e-4, "min_thickness": 0.004, "steps": 1}
-    assert plan_cuts(ARCH, goals, f, **kw).status == 0
-    plan = plan_cuts(ARCH, goals, f, uncertainty_cents=[0.2, 0.2, 0.2], **kw)
+    assert plan_cuts(ARCH, goals, f, LIMITS, steps=1).status == 0
+    plan = plan_cuts(ARCH, goals, f, LIMITS, steps=1, uncertainty_cents=[0.2, 0.2, 0.2])
     # 0.8 + 2 x 0.2 > 1: a light step toward the middle of the band, still never below it
     assert plan.status == 1
     assert 0 <= plan.steps[0].predicted_cents[0] < 0.8
@@ -275,13 +309,18 @@ def test_a_reading_just_inside_the_band_is_not_done_when_uncertain():
 def test_flat_fundamental_gets_no_arch_cut_and_a_shortening_option():
     e0 = np.array([-20.0, -15.0, -12.0])
     goals, f = _goals_offset(ARCH, e0)
-    plan = plan_cuts(ARCH, goals, f, width=0.02, max_step_depth=5e-4, min_thickness=0.004)
+    plan = plan_cuts(ARCH, goals, f, LIMITS)
     assert plan.flat == ("bending 1", "bending 2", "bending 3")
     assert any("only removal at the very ends or shortening" in n for n in plan.notes)
-    # steps, if any, only raise: no partial ever goes flatter
+    # every partial is flat, and removal at the very ends raises them (trade, common practice,
+    # no source): the plan has steps there, and no partial ever goes flatter
+    assert plan.status == 1 and len(plan.steps) >= 1
     e = e0
     for step in plan.steps:
         assert np.all(step.predicted_cents >= e - 0.011)
+        assert np.any(step.predicted_cents > e + 0.011)  # the step does raise something
+        for a, b in step.cut.windows_m:
+            assert b <= 0.1 * L or a >= 0.9 * L  # at the ends, beyond the outer nodes
         e = step.predicted_cents
     short = plan.shortening
     assert short is not None
@@ -313,7 +352,7 @@ def test_advise_fits_the_material_on_the_cut_bar_and_identifies_the_partials():
         r.frequency("bending", 2),
     ]
     goals, _ = _goals_offset(ARCH, np.array([30.0, 20.0, 10.0]))
-    adv = advise(ARCH, goals, measured, min_thickness=0.004, steps=1)
+    adv = advise(ARCH, goals, measured, ONE_STEP)
     labels = {p.label for p in adv.calibration.partials}
     assert labels == {"bending 1", "bending 2", "bending 3", "torsion 1", "lateral 1"}
     # the fit recovers the invented material: model and data differ by 0.01-cent solves only
@@ -326,7 +365,7 @@ def test_advise_fits_the_material_on_the_cut_bar_and_identifies_the_partials():
 
 def test_a_goal_partial_not_measured_comes_from_the_fitted_model():
     goals, f = _goals_offset(ARCH, np.array([30.0, 20.0, 10.0]))
-    adv = advise(ARCH, goals, f[:2], min_thickness=0.004, steps=1)
+    adv = advise(ARCH, goals, f[:2], ONE_STEP)
     assert adv.measured == (True, True, False)
     # same material as the library: the fitted model predicts the third partial
     assert adv.now_hz[2] == pytest.approx(f[2], rel=2e-5)  # 0.03 cent: solver accuracy
@@ -334,7 +373,7 @@ def test_a_goal_partial_not_measured_comes_from_the_fitted_model():
 
 def test_strike_goals_are_refused():
     with pytest.raises(InputError, match="strike"):
-        advise(ARCH, [Goal("strike", 1, 300.0)], [300.0], min_thickness=0.004)
+        advise(ARCH, [Goal("strike", 1, 300.0)], [300.0], AdviceOptions(LIMITS))
 
 
 # ---------------------------------------------------------------------------------------------
@@ -496,6 +535,42 @@ BAR_TABLE = {
         (
             {
                 "material": "honduras-rosewood",
+                "bar": BAR_TABLE,
+                "target": {"fundamental": "C4", "ratios": [1, 4]},
+            },
+            ["--partials", "262,,1049"],
+            "--partials '262,,1049': give frequencies in Hz separated by single commas",
+        ),
+        (
+            {
+                "material": "honduras-rosewood",
+                "bar": BAR_TABLE,
+                "target": {"fundamental": "C4", "ratios": [1, 4]},
+            },
+            ["--partials", "262;1049"],
+            "--partials '262;1049': give frequencies in Hz separated by single commas",
+        ),
+        (
+            {
+                "material": "honduras-rosewood",
+                "bar": BAR_TABLE,
+                "target": {"fundamental": "C4", "ratios": [1, 4]},
+            },
+            ["--partials", "262, 1049;2617"],
+            "--partials '262, 1049;2617': give frequencies in Hz separated by single commas",
+        ),
+        (
+            {
+                "material": "honduras-rosewood",
+                "bar": BAR_TABLE,
+                "target": {"fundamental": "C4", "ratios": [1, 4]},
+            },
+            ["--partials", "262 1049"],
+            "--partials '262 1049': give frequencies in Hz separated by single commas",
+        ),
+        (
+            {
+                "material": "honduras-rosewood",
                 "bar": {**BAR_TABLE, "profile": [[0, 20], [190, 21], [380, 20]]},
                 "target": {"fundamental": "C4", "ratios": [1, 4]},
             },
@@ -561,6 +636,10 @@ BAR_TABLE = {
         "no-target",
         "bad-partials",
         "negative-partials",
+        "doubled-comma",
+        "semicolons",
+        "mixed-separators",
+        "spaces-only",
         "thicker-than-blank",
         "step-depth",
         "tool-width",
@@ -576,3 +655,4 @@ def test_bad_input_exits_2_with_one_line(tmp_path, raw, args, message):
     assert result.exit_code == 2, result.output
     lines = result.stderr.strip().splitlines()
     assert len(lines) == 1 and lines[0].startswith("error: ") and message in lines[0]
+    assert "Traceback" not in result.output

@@ -14,21 +14,21 @@ import numpy as np
 import pytest
 import soundfile as sf
 import typer
+from tonewright.acoustics.pitch import CENTS_PER_LN
+from tonewright.acoustics.synth import decay_from_loss_factor, modal_strike
 from tonewright.forward import Bar, Material, constant, solve
-from typer.testing import CliRunner
-
-from tonewright.calibrate import (
-    CENTS_PER_LN,
+from tonewright.optimizer.calibration import (
     calibrate_bar,
     fit_moduli,
     loss_factor_from_decay,
     moduli_model,
 )
+from typer.testing import CliRunner
+
 from tonewright.commands.calibrate import register
 from tonewright.errors import InputError
 from tonewright.materials import load_material, load_material_file
 from tonewright.partfile import load_part
-from tonewright.synth import decay_from_loss_factor, modal_strike
 
 app = typer.Typer()
 register(app)
@@ -373,6 +373,9 @@ HZ = ["--partials", "546.1,1406.5,2525.1"]
         ([*DIMS[:-1], "bubinga-x", "--mass", "412", *HZ], "not in the library"),
         ([*DIMS, "--mass", "412"], "--wav/--partials"),
         ([*DIMS, "--mass", "412", "--partials", "546,abc"], "--partials"),
+        # the same parser as advise: single commas only
+        ([*DIMS, "--mass", "412", "--partials", "546.1,,1406.5"], "separated by single commas"),
+        ([*DIMS, "--mass", "412", "--partials", "546.1;1406.5"], "'546.1;1406.5'"),
         ([*DIMS, "--mass", "412", "--partials", "546.1,546.1"], "given twice"),
         ([*DIMS, "--mass", "412", "--partials", "500,502,504,506"], "cannot be matched"),
         ([*DIMS, "--mass", "412", *HZ, "--tolerance", "0"], "--tolerance"),
@@ -387,6 +390,7 @@ def test_input_errors(args, needle):
     lines = result.stderr.strip().splitlines()
     assert len(lines) == 1 and lines[0].startswith("error: ")
     assert needle in lines[0]
+    assert "Traceback" not in result.output
 
 
 def test_tube_part_file_is_refused(tmp_path):

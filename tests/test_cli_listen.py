@@ -8,12 +8,12 @@ import pytest
 import soundfile as sf
 import typer
 from tonewright.acoustics.pitch import strike_note_hz
+from tonewright.acoustics.synth import modal_strike
 from typer.testing import CliRunner
 
 from tonewright.audio import read_tap, read_wav, to_mono, write_wav
 from tonewright.commands.listen import register
 from tonewright.errors import InputError
-from tonewright.synth import modal_strike
 
 app = typer.Typer()
 register(app)
@@ -158,6 +158,42 @@ def test_silence(tmp_path):
     path = tmp_path / "silence.wav"
     sf.write(path, np.zeros(22050), 22050, subtype="PCM_16")
     assert_one_line_error(listen(path), "silent")
+
+
+def assert_clean_exit_2(result, *fragments):
+    """Exit code 2, one ``error:`` line holding every fragment, no partials, no traceback."""
+    assert_one_line_error(result, fragments[0])
+    line = result.stderr.strip()
+    for fragment in fragments[1:]:
+        assert fragment in line
+    assert isinstance(result.exception, SystemExit)  # typer.Exit(2), not an uncaught error
+    assert "Traceback" not in result.output
+
+
+def test_constant_level_is_no_partial(tmp_path):
+    # A DC offset alone (a recorder with a biased input and no strike) rings at no frequency.
+    path = tmp_path / "dc.wav"
+    sf.write(path, np.full(44100, 0.25), 44100, subtype="PCM_24")
+    result = listen(path, "--json")
+    assert_clean_exit_2(result, "no partials found", "no clear ringing partial", "record again")
+
+
+def test_white_noise_is_no_partial(tmp_path):
+    # Gaussian noise has a flat spectrum: no line stands 15 dB above its own floor.
+    rng = np.random.default_rng(11)
+    path = tmp_path / "noise.wav"
+    sf.write(path, rng.normal(0.0, 0.1, 2 * 44100), 44100, subtype="PCM_16")
+    result = listen(path)
+    assert_clean_exit_2(result, "no partials found", "no clear ringing partial", "record again")
+
+
+def test_sample_rate_below_the_minimum_is_refused(tmp_path):
+    # At 1 kHz the band ends at 500 Hz: a bar's second and third partials are lost.
+    path = tmp_path / "slow.wav"
+    t = np.arange(2000) / 1000.0
+    sf.write(path, 0.5 * np.exp(-t) * np.sin(2 * np.pi * 110.0 * t), 1000, subtype="PCM_24")
+    result = listen(path, "--json")
+    assert_clean_exit_2(result, "sample rate 1000 Hz", "at least 8000 Hz")
 
 
 def test_ten_millisecond_file(tmp_path):

@@ -10,16 +10,17 @@ import pytest
 import soundfile as sf
 import typer
 from scipy.integrate import quad
+from tonewright.acoustics.preview import MALLET_CONTACT_S, preview_modes
+from tonewright.acoustics.synth import half_sine_spectrum
+from tonewright.acoustics.tap import find_partials
 from tonewright.forward import Bar, Material, String, Support, constant, solve
 from typer.testing import CliRunner
 
 from tonewright.audio import read_tap
+from tonewright.bench import mallet_contact_s
 from tonewright.commands.sound import register
 from tonewright.errors import InputError
 from tonewright.partfile import load_part
-from tonewright.preview import MALLET_CONTACT_S, mallet_contact_s, preview_modes
-from tonewright.synth import half_sine_spectrum
-from tonewright.tap import find_partials
 
 app = typer.Typer()
 register(app)

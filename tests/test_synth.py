@@ -6,15 +6,15 @@ import math
 import numpy as np
 import pytest
 from scipy.integrate import quad
-
-from tonewright.errors import InputError
-from tonewright.synth import (
+from tonewright.acoustics.synth import (
     decay_from_loss_factor,
     half_sine_spectrum,
     modal_strike,
     t60_from_decay,
 )
-from tonewright.tap import find_partials
+from tonewright.acoustics.tap import find_partials
+
+from tonewright.errors import InputError
 
 # --- the half-sine pulse spectrum ---------------------------------------------------------------
 

@@ -16,8 +16,8 @@ import numpy as np
 import pytest
 from tonewright.forward import PiecewiseLinear, solve
 from tonewright.optimizer import SearchSettings, design
+from tonewright.optimizer.cutplan import AdviceOptions, CutLimits, advise, anchored, apply_cut
 
-from tonewright.advise import advise, anchored, apply_cut
 from tonewright.design import build_problem, station_profile
 from tonewright.partfile import parse_part
 
@@ -72,9 +72,8 @@ def test_tap_advise_cut_reaches_the_target_without_overshoot():
         # no partial of the TRUE bar ever goes below target - tolerance: no overshoot
         assert np.all(error >= -TOL), history
         tap = np.append(f_true, f_torsion) * 2 ** (rng.normal(0.0, NOISE_CENTS, 4) / 1200)
-        advice = advise(
-            model_bar, goals, tap[::-1], np.full(4, NOISE_CENTS), min_thickness=0.2 * t0
-        )
+        options = AdviceOptions(CutLimits(min_thickness=0.2 * t0))
+        advice = advise(model_bar, goals, tap[::-1], options, np.full(4, NOISE_CENTS))
         cal = advice.calibration
         # the tap-fitted material is the true one (noise 0.2 cent: well under 0.2 % in E)
         assert cal.E == pytest.approx(1.06 * library.E, rel=2e-3)

@@ -186,14 +186,16 @@ def prepare_out_dir(out: Path, names: list[str], *, force: bool) -> Path:
 
 
 def parse_partials(text: str) -> np.ndarray:
-    """Frequencies in Hz from ``"262.1, 1049.5, 2617"`` (commas, spaces or semicolons)."""
-    items = [t for t in re.split(r"[,\s;]+", text.strip()) if t]
-    try:
-        values = np.array([float(t) for t in items])
-    except ValueError:
+    """Frequencies in Hz from ``"262.1, 1049.5, 2617"``: numbers separated by single commas,
+    spaces allowed around each comma. Anything else (doubled or trailing commas, semicolons,
+    spaces alone between numbers, units) is refused with one line naming the value."""
+    number = r"[+-]?(?:\d+(?:\.\d*)?|\.\d+)(?:[eE][+-]?\d+)?"
+    if not re.fullmatch(rf"\s*{number}(?:\s*,\s*{number})*\s*", text):
         raise InputError(
-            f'--partials {text!r}: give frequencies in Hz separated by commas, e.g. "262.1,1049.5"'
-        ) from None
-    if values.size == 0 or not np.all(np.isfinite(values)) or np.any(values <= 0):
+            f"--partials {text!r}: give frequencies in Hz separated by single commas, "
+            'e.g. "262.1, 1049.5, 2617"'
+        )
+    values = np.array([float(t) for t in text.split(",")])
+    if not np.all(np.isfinite(values)) or np.any(values <= 0):
         raise InputError(f"--partials {text!r}: give one or more positive frequencies in Hz")
     return values

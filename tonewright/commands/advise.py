@@ -3,7 +3,8 @@
 FILE is the part as it is now: its [bar] profile holds the thickness measured with calipers
 (or it is a design's part.toml / result.json), and its [target] table says what to tune to.
 The measured partials come from a recording (``--wav``) or are typed in (``--partials``).
-The numerics are in ``tonewright.advise``.
+The workflow is ``tonewright.bench.advise_bar``; the numerics are in
+``tonewright.optimizer.cutplan``.
 """
 
 from __future__ import annotations
@@ -19,41 +20,16 @@ from rich import box
 from rich.console import Console
 from rich.table import Table
 
-from tonewright.advise import CENTS_PER_LN, Advice, Step, advise
-from tonewright.audio import read_tap
-from tonewright.cli_support import atomic_write_bytes, guarded, parse_partials
+from tonewright.bench import AdviseRequest, advise_bar
+from tonewright.cli_support import atomic_write_bytes, guarded
 from tonewright.errors import InputError
-from tonewright.forward import Bar, Material
-from tonewright.optimizer import Goal
+from tonewright.optimizer import Advice
 from tonewright.partfile import PartFile, load_part
-from tonewright.tap import find_partials
-from tonewright.tuning import resolve
 
-__all__ = ["CAUTION", "advice_payload", "goals_of", "map_figure", "register"]
+__all__ = ["map_figure", "register"]
 
-CAUTION = (
-    "Material cannot be put back: cut no deeper than advised, tap after each step and run "
-    "advise again with the new measurements. Use guards and dust extraction (many tonewood "
-    "dusts are sensitisers), eye and hearing protection; on a CNC, check the program in a "
-    "simulator and air-cut first; follow your machine's manual and local practice."
-)
 DEFAULT_MIN_SHARE = 0.2  # minimum thickness, as a share of the blank, when the file gives none
 PALETTE = ("#1b6f8a", "#c0392b", "#7b4fa0", "#5a8f29", "#b5651d", "#444444")
-
-
-def goals_of(part_file: PartFile, base: Path | None) -> tuple[Goal, ...]:
-    """The tuned partials of the file's [target] table, in Hz."""
-    if part_file.target is None:
-        raise InputError("the part file has no [target] table: say what to tune to")
-    spec = part_file.material_spec(base)
-    coeff = spec.temp_coeff_cents_per_K if spec is not None else None
-    target = resolve(part_file.target, material_temp_coeff=coeff)
-    if target.kind == "strike":
-        raise InputError(
-            f"target.profile {target.name!r} is a strike-note target (chimes, tubes); advise "
-            "tunes the partials of a bar: give ratios, cents, notes or a partials profile"
-        )
-    return tuple(Goal(p.family, p.order, p.f_hz, p.tolerance_cents) for p in target.partials)
 
 
 def _min_thickness(part_file: PartFile, option_mm: float | None) -> float:
@@ -73,122 +49,6 @@ def _min_thickness(part_file: PartFile, option_mm: float | None) -> float:
             f"{t0 * 1e3:g} mm"
         )
     return value
-
-
-def _measure(
-    wav: Path | None, partials: str | None, count: int, fmin: float
-) -> tuple[np.ndarray, np.ndarray | None, list[str]]:
-    if (wav is None) == (partials is None):
-        raise InputError("--wav/--partials: give one of them (a recording, or typed Hz)")
-    if partials is not None:
-        return parse_partials(partials), None, []
-    if not 1 <= count <= 50:
-        raise InputError(f"--count {count}: give 1 to 50 partials")
-    recording = read_tap(wav)
-    tap = find_partials(recording.samples, recording.rate, count=count, fmin=fmin)
-    if not tap.partials:
-        raise InputError(f"--wav {wav}: no partials found in the recording")
-    f = np.array([p.frequency_hz for p in tap.partials])
-    sd = CENTS_PER_LN * np.array([p.frequency_uncertainty_hz for p in tap.partials]) / f
-    sd = np.where(np.isfinite(sd) & (sd > 0), sd, np.nan)
-    return f, sd, [*recording.warnings, *tap.warnings]
-
-
-# ---------------------------------------------------------------------------------------------
-# Output
-
-
-def _mm(v: float, digits: int = 3) -> float:
-    return round(float(v) * 1e3, digits)
-
-
-def _rows(goals, f_hz, cents) -> list[dict[str, Any]]:
-    return [
-        {"partial": g.label, "hz": round(float(f), 4), "cents": round(float(c), 3)}
-        for g, f, c in zip(goals, f_hz, cents, strict=True)
-    ]
-
-
-def _step_json(i: int, step: Step, goals) -> dict[str, Any]:
-    cut = step.cut
-    return {
-        "step": i,
-        "positions_mm": [_mm(x, 2) for x in cut.positions_m],
-        "windows_mm": [[_mm(a, 2), _mm(b, 2)] for a, b in cut.windows_m],
-        "depth_mm": _mm(cut.depth_m),
-        "length_mm": _mm(cut.length_m, 2),
-        "tool_width_mm": _mm(cut.width_m, 2),
-        "eased_edge_mm": _mm(min(cut.ramp_m, 0.25 * cut.width_m), 2),
-        "serves": step.serves,
-        "predicted": _rows(goals, step.predicted_hz, step.predicted_cents),
-        "thinnest_after_mm": _mm(step.thinnest_m),
-    }
-
-
-def advice_payload(
-    advice: Advice, start: Material, title: str, min_thickness: float, warnings: list[str]
-) -> dict[str, Any]:
-    """The JSON form of the advice (mm, Hz, cents, GPa); ``start`` is the file's material."""
-    cal, plan, goals = advice.calibration, advice.plan, advice.goals
-    tmap = plan.tuning_map
-    short = plan.shortening
-    return {
-        "part": title,
-        "measured": [
-            {
-                "frequency_hz": round(p.frequency_hz, 4),
-                "mode": None if p.family is None else p.label,
-                "model_hz": None if p.family is None else round(p.model_hz, 4),
-                "residual_cents": None if p.family is None else round(p.residual_cents, 3),
-            }
-            for p in cal.partials
-        ],
-        "material": {
-            "E_GPa": round(cal.E / 1e9, 5),
-            "G_GPa": round(cal.G / 1e9, 5),
-            "G_fitted": cal.G_fitted,
-            "density_kg_m3": start.rho,
-            "E_change_percent": round(100.0 * (cal.E / start.E - 1.0), 3),
-            "G_change_percent": round(100.0 * (cal.G / start.G - 1.0), 3),
-            "rms_cents": round(cal.rms_cents, 3),
-        },
-        "partials": [
-            {
-                "partial": g.label,
-                "target_hz": round(g.f_hz, 4),
-                "tolerance_cents": g.tolerance_cents,
-                "now_hz": round(float(f), 4),
-                "now_cents": round(float(c), 3),
-                "from": "measured" if m else "model",
-            }
-            for g, f, c, m in zip(
-                goals, plan.start_hz, plan.start_cents, advice.measured, strict=True
-            )
-        ],
-        "steps": [_step_json(i + 1, s, goals) for i, s in enumerate(plan.steps)],
-        "status": plan.status,
-        "message": plan.message,
-        "flat": list(plan.flat),
-        "shortening": None
-        if short is None
-        else {
-            "trim_each_end_mm": _mm(short.trim_m, 2),
-            "new_length_mm": _mm(short.length_m, 2),
-            "predicted": _rows(goals, short.predicted_hz, short.predicted_cents),
-        },
-        "min_thickness_mm": _mm(min_thickness),
-        "tuning_map": {
-            "tool_width_mm": _mm(tmap.width_m, 2),
-            "positions_mm": [_mm(x, 2) for x in tmap.positions_m],
-            "cents_per_0_1_mm": {
-                label: [round(float(v), 4) for v in row]
-                for label, row in zip(tmap.labels, tmap.cents_per_tenth_mm, strict=True)
-            },
-        },
-        "notes": list(plan.notes),
-        "warnings": warnings,
-        "caution": CAUTION,
-    }
 
 
 def _where(step: dict[str, Any], length_mm: float) -> str:
@@ -361,53 +221,33 @@ def register(app: typer.Typer) -> None:
             raise InputError(
                 f"{file.name}: advise works on bars; this file holds a [{part_file.kind}]"
             )
-        goals = goals_of(part_file, base)
-        if not (math.isfinite(step_depth) and 0.0 < step_depth <= 3.0):
-            raise InputError(f"--step-depth {step_depth:g}: give mm above 0 and at most 3")
-        if not 1 <= steps <= 10:
-            raise InputError(f"--steps {steps}: give 1 to 10 steps")
-        length_mm = part_file.bar.length * 1e3
-        if not (math.isfinite(tool_width) and 2.0 <= tool_width <= length_mm / 3.0):
-            raise InputError(
-                f"--tool-width {tool_width:g}: give mm from 2 to a third of the bar length "
-                f"({length_mm / 3.0:.0f} mm)"
-            )
-        h_min = _min_thickness(part_file, min_thickness)
         if plot is not None and plot.exists() and not force:
             raise InputError(f"--plot {plot} exists already; pass --force to replace it")
-        f, sd, warnings = _measure(wav, partials, count, fmin)
-        bar: Bar = part_file.to_part(base)
-        thinnest_now = float(np.min(bar.thickness(np.linspace(0.0, bar.length, 2001))))
-        if thinnest_now < h_min:
-            warnings.append(
-                f"the bar is already {thinnest_now * 1e3:.2f} mm thick somewhere, under the "
-                f"minimum thickness {h_min * 1e3:g} mm: no cut is planned there"
-            )
-        advice = advise(
-            bar,
-            goals,
-            f,
-            sd,
-            width=tool_width * 1e-3,
-            max_step_depth=step_depth * 1e-3,
-            min_thickness=h_min,
+        request = AdviseRequest(
+            part_file=part_file,
+            base=base,
+            title=part_file.title or file.stem,
+            min_thickness_m=_min_thickness(part_file, min_thickness),
+            wav=wav,
+            partials=partials,
+            step_depth_mm=step_depth,
             steps=steps,
-            symmetric=not one_sided,
-            theory=part_file.model.theory,
+            tool_width_mm=tool_width,
+            one_sided=one_sided,
+            count=count,
+            fmin=fmin,
         )
-        warnings += list(advice.calibration.warnings)
-        title = part_file.title or file.stem
-        payload = advice_payload(advice, bar.material, title, h_min, warnings)
+        report = advise_bar(request)
         if plot is not None:
             from tonewright.plots import figure_bytes
 
-            fig = map_figure(advice, bar.length)
+            fig = map_figure(report.advice, report.advice.bar.length)
             atomic_write_bytes(plot, figure_bytes(fig, "png"), overwrite=force)
         if as_json:
-            typer.echo(json.dumps(payload, indent=2))
+            typer.echo(json.dumps(dict(report.payload), indent=2))
         else:
-            _print(Console(highlight=False), payload, length_mm)
+            _print(Console(highlight=False), dict(report.payload), report.length_mm)
             if plot is not None:
                 Console(highlight=False).print(f"wrote {plot}")
-        for w in warnings:
+        for w in report.warnings:
             typer.echo(f"warning: {w}", err=True)

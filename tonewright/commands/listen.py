@@ -1,4 +1,8 @@
-"""``listen``: measure the partials of a recorded tap on a bar or chime."""
+"""``listen``: measure the partials of a recorded tap on a bar or chime.
+
+The workflow (read, check, analyse) is ``tonewright.bench.listen_to_tap``; this module parses
+the options and prints the report.
+"""
 
 from __future__ import annotations
 
@@ -12,15 +16,11 @@ from rich import box
 from rich.console import Console
 from rich.table import Table
 
-from tonewright.acoustics.pitch import hz_to_note, strike_note_hz
-from tonewright.audio import read_tap
+from tonewright.acoustics.pitch import hz_to_note
+from tonewright.bench import TapReport, listen_to_tap
 from tonewright.cli_support import guarded
-from tonewright.errors import InputError
-from tonewright.tap import TapResult, find_partials
 
 __all__ = ["listen", "register"]
-
-KINDS = ("bar", "chime")
 
 
 def _finite(value: float) -> float | None:
@@ -28,15 +28,7 @@ def _finite(value: float) -> float | None:
     return value if math.isfinite(value) else None
 
 
-def _strike(result: TapResult) -> tuple[float | None, str | None]:
-    """Strike note of a chime, or None and the reason it cannot be given."""
-    try:
-        return strike_note_hz(result.frequencies_hz), None
-    except InputError as exc:
-        return None, f"no strike note: {exc}"
-
-
-def _payload(result: TapResult, kind: str, warnings: list[str]) -> dict:
+def _payload(report: TapReport) -> dict:
     out: dict = {
         "partials": [
             {
@@ -45,24 +37,22 @@ def _payload(result: TapResult, kind: str, warnings: list[str]) -> dict:
                 "decay_s": round(p.decay_s, 4),
                 "uncertainty_hz": _finite(float(f"{p.frequency_uncertainty_hz:.3g}")),
             }
-            for p in result.partials
+            for p in report.result.partials
         ]
     }
-    if kind == "chime":
-        strike, why = _strike(result)
-        out["strike_hz"] = None if strike is None else round(strike, 6)
-        if why:
-            warnings.append(why)
-    out["warnings"] = warnings
+    if report.kind == "chime":
+        out["strike_hz"] = None if report.strike_hz is None else round(report.strike_hz, 6)
+    out["warnings"] = list(report.warnings)
     return out
 
 
-def _table(result: TapResult, title: str) -> Table:
+def _table(report: TapReport, title: str) -> Table:
     table = Table(title=title, box=box.SIMPLE_HEAD, title_justify="left")
     for name in ("#", "Hz", "± Hz", "note", "cents", "level dB", "decay s", "ratio"):
         table.add_column(name, justify="left" if name == "note" else "right")
-    f1 = result.partials[0].frequency_hz if result.partials else math.nan
-    for i, p in enumerate(result.partials, start=1):
+    partials = report.result.partials
+    f1 = partials[0].frequency_hz if partials else math.nan
+    for i, p in enumerate(partials, start=1):
         note, off = hz_to_note(p.frequency_hz)
         table.add_row(
             str(i),
@@ -95,26 +85,21 @@ def listen(
     ] = None,
 ) -> None:
     """Measure the partials of a recorded tap: frequency, note, level and decay."""
-    if kind not in KINDS:
-        raise InputError(f"--kind: got {kind!r}; choose one of {', '.join(KINDS)}")
-    recording = read_tap(wav)
-    result = find_partials(recording.samples, recording.rate, count=count, fmin=fmin, fmax=fmax)
-    warnings = [*recording.warnings, *result.warnings]
-    payload = _payload(result, kind, warnings)
+    report = listen_to_tap(wav, count=count, kind=kind, fmin=fmin, fmax=fmax)
     if json_out:
-        typer.echo(json.dumps(payload, indent=2))
+        typer.echo(json.dumps(_payload(report), indent=2))
         return
+    result = report.result
     title = (
-        f"{wav.name}: {len(result.partials)} partial(s), {recording.rate} Hz, "
+        f"{report.name}: {len(result.partials)} partial(s), {report.rate} Hz, "
         f"strike at {result.onset_s:.3f} s, {result.analysed_s:.2f} s analysed"
     )
     console = Console(highlight=False)
-    console.print(_table(result, title))
-    strike = payload.get("strike_hz")
-    if strike is not None:
-        note, off = hz_to_note(strike)
-        console.print(f"strike note: {strike:.2f} Hz ({note} {off:+.1f} cents)")
-    for w in payload["warnings"]:
+    console.print(_table(report, title))
+    if report.strike_hz is not None:
+        note, off = hz_to_note(report.strike_hz)
+        console.print(f"strike note: {report.strike_hz:.2f} Hz ({note} {off:+.1f} cents)")
+    for w in report.warnings:
         typer.echo(f"warning: {w}", err=True)
 
 

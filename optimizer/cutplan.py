@@ -6,7 +6,7 @@ it is now (thickness stations from the calipers) and the partials just measured:
 Model update
 ------------
 E and G are fitted to the measured partials on the *current* geometry with the calibration
-machinery of ``tonewright.calibrate`` (identification of each partial by a scan over E and
+machinery of ``optimizer.calibration`` (identification of each partial by a scan over E and
 G/E and a one-to-one matching, then least squares in cents; G only when a torsional or third
 bending partial carries shear information). The model's remaining residual at each tuned
 partial is carried forward: a prediction after a cut is
@@ -37,8 +37,9 @@ c_t(h) in K and m_t(h) in M (``forward.fem``),
                                  - lambda sum_M (dm_t/dh) (B_t phi)^2 ] dx,
 
 evaluated by ``optimizer.sensitivity.eigenvalue_gradients`` on a composite quadrature split
-at every ramp end (so chi is integrated exactly), with dc/dh by the complex step (Squire, W.
-& Trapp, G., 1998, SIAM Review 40, 110-112). In cents,
+at every ramp end (so chi is integrated exactly; ``forward.modes_on_mesh``), with dc/dh by
+the complex step (Squire, W. & Trapp, G., 1998, SIAM Review 40, 110-112;
+``forward.thickness_derivatives``). In cents,
 
     S_jk = d cents_j / d d_k = (1200 / ln 2) (d lambda_j / d d_k) / (2 lambda_j),
 
@@ -95,29 +96,29 @@ from dataclasses import dataclass, field, replace
 import numpy as np
 from numpy.typing import ArrayLike, NDArray
 from scipy.optimize import linprog
-
-from tonewright.calibrate import DEFAULT_COUNTS, Calibration, calibrate_bar
-from tonewright.errors import InputError
-from tonewright.forward.fem import build_quadrature
-from tonewright.forward.geometry import Bar, Field, Hole, PiecewiseLinear, Support
-from tonewright.forward.modal import (
-    Discretisation,
-    assemble_family,
-    bar_coefficients,
-    discretise,
-    hole_data,
-    lowest_modes,
-    section_coefficients,
+from tonewright.acoustics.pitch import CENTS_PER_LN, cents_to_ratio
+from tonewright.forward import (
+    Bar,
+    Field,
+    Hole,
+    PiecewiseLinear,
+    Support,
+    modes_on_mesh,
+    thickness_derivatives,
 )
+from tonewright.optimizer.calibration import DEFAULT_COUNTS, Calibration, calibrate_bar
 from tonewright.optimizer.objective import Goal
 from tonewright.optimizer.sensitivity import eigenvalue_gradients
 
+from tonewright.errors import InputError
+
 __all__ = [
-    "CENTS_PER_LN",
     "CLOSURE",
     "EDGE_RAMP",
     "Advice",
+    "AdviceOptions",
     "Cut",
+    "CutLimits",
     "CutThickness",
     "Plan",
     "Shortening",
@@ -137,7 +138,6 @@ __all__ = [
     "tuning_map",
 ]
 
-CENTS_PER_LN = 1200.0 / np.log(2.0)
 CLOSURE = 0.75  # a step closes at most this share of a partial's error
 EDGE_RAMP = 2e-3  # m; eased edge at each end of a window (at most a quarter of it)
 MIN_DEPTH = 5e-6  # m; a shallower step is not worth planning (within the sanding noise)
@@ -146,7 +146,6 @@ AIM = 0.25  # the linear program aims each partial within this share of its tole
 SLACK_COST = 1e3  # mm^2 of removed profile area worth one tolerance of error (the LP)
 BOUND_SLACK_CENTS = 0.01  # re-solved partials may miss a bound by this much (solver noise)
 DEGREE = 8
-_H = 1e-30  # complex step
 
 
 # ---------------------------------------------------------------------------------------------
@@ -336,15 +335,6 @@ def _counts(goals: Sequence[Goal]) -> dict[str, int]:
     return counts
 
 
-def _thickness_derivatives(bar: Bar, x: np.ndarray) -> dict[str, np.ndarray]:
-    """d(section coefficient)/dh at x by the complex step (exact to rounding)."""
-    m = bar.material
-    chord, z = hole_data(bar, x)
-    h = bar.thickness(x) + 1j * _H
-    c = bar_coefficients(bar.width(x), h, chord, z, m.E, m.G, m.rho, m.nu, m.shear_ratio)
-    return {name: np.imag(v) / _H for name, v in c.items()}
-
-
 def _analyse(
     bar: Bar,
     goals: Sequence[Goal],
@@ -356,50 +346,39 @@ def _analyse(
     """Goal frequencies and their window sensitivities, mesh refined to ``tol_cents``."""
     counts = _counts(goals)
     bar = anchored(bar)
-    L = bar.length
     edges = [e for win in windows for a, b in win for e in _shape_breaks(a, b, ramp)]
-    bps = np.concatenate(
-        [
-            np.asarray(bar.thickness.breakpoints, float),
-            np.asarray(bar.width.breakpoints, float),
-            np.asarray(edges, float),
-        ]
-    )
-    bps = np.unique(bps[(bps > 0.0) & (bps < L)])
-    holes = tuple((h.x, 0.5 * h.diameter) for h in bar.holes)
     for elements in (8, 16, 32, 64):
-        mesh = discretise(bar, elements=elements, degree=DEGREE, theory=theory)
-        quad = build_quadrature(mesh.edges, bps, holes, DEGREE + 4)
-        disc = Discretisation(quad=quad, degree=DEGREE, theory=theory)
-        coef = section_coefficients(bar, quad.x)
-        solved, worst = {}, 0.0
+        mesh = modes_on_mesh(
+            bar, counts, elements=elements, degree=DEGREE, theory=theory, extra_breakpoints=edges
+        )
+        worst = 0.0
         for fam, count in counts.items():
-            system = assemble_family(bar, disc, fam, coef)
-            lam, vec = lowest_modes(system, count)
-            lam_lo, _ = lowest_modes(system, count, subspace=np.flatnonzero(system.lower))
-            if lam.size < count:
+            modes = mesh.families[fam]
+            if modes.lam.size < count:
                 raise InputError(f"target: the bar has fewer than {count} {fam} modes")
-            worst = max(worst, float(np.max(600.0 * np.log2(lam_lo[:count] / lam))))
-            solved[fam] = (lam, vec, system)
+            worst = max(worst, float(np.max(modes.error_cents[:count])))
         if worst <= tol_cents:
             break
-    x = quad.x
+    x = mesh.x
     chi = np.zeros((len(windows), x.size))
     for k, win in enumerate(windows):
         for a, b in win:
             chi[k] += removal_shape(x, a, b, ramp)
     chi = np.minimum(chi, 1.0)
-    dch = _thickness_derivatives(bar, x)
+    dch = thickness_derivatives(bar, x)
     grads = {}
-    for fam, (lam, vec, system) in solved.items():
+    for fam, modes in mesh.families.items():
+        system = modes.system
         names = {t.coefficient for t in system.stiffness + system.mass}
         # removal: thickness = h - depth in the window, so d coef / d depth = -dc/dh chi
         dcoef = {name: -dch[name][None, :] * chi for name in names}
-        grads[fam] = eigenvalue_gradients(system, lam, vec, dcoef) if windows else None
+        grads[fam] = (
+            eigenvalue_gradients(system, modes.lam, modes.vectors, dcoef) if windows else None
+        )
     f_hz = np.empty(len(goals))
     S = np.zeros((len(goals), len(windows)))
     for j, g in enumerate(goals):
-        lam = solved[g.family][0][g.order - 1]
+        lam = mesh.families[g.family].lam[g.order - 1]
         f_hz[j] = np.sqrt(lam) / (2.0 * np.pi)
         if windows:
             S[j] = CENTS_PER_LN * grads[g.family][g.order - 1] / (2.0 * lam)
@@ -479,6 +458,31 @@ def tuning_map(
 
 # ---------------------------------------------------------------------------------------------
 # Planning
+
+
+@dataclass(frozen=True)
+class CutLimits:
+    """What one step may do, in metres: tool ``width``, ``max_step_depth`` per step, never
+    thinner than ``min_thickness``; ``symmetric`` pairs (or single windows); ``closure``, the
+    largest share of a partial's error a step may close; ``ramp``, the eased edge."""
+
+    min_thickness: float
+    width: float = 0.02
+    max_step_depth: float = 5e-4
+    symmetric: bool = True
+    closure: float = CLOSURE
+    ramp: float = EDGE_RAMP
+
+
+@dataclass(frozen=True)
+class AdviceOptions:
+    """Settings of ``advise``: the cut limits, how many ``steps`` to plan, the beam
+    ``theory``, and how far (cents) a partial may lie from its mode to be identified."""
+
+    limits: CutLimits
+    steps: int = 3
+    theory: str = "timoshenko"
+    identification_cents: float = 30.0
 
 
 @dataclass(frozen=True, eq=False)
@@ -596,25 +600,22 @@ def plan_cuts(
     bar: Bar,
     goals: Sequence[Goal],
     now_hz: ArrayLike,
+    limits: CutLimits,
     *,
-    width: float,
-    max_step_depth: float,
-    min_thickness: float,
     steps: int = 3,
-    symmetric: bool = True,
-    closure: float = CLOSURE,
     theory: str = "timoshenko",
     tol_cents: float = 0.01,
-    ramp: float = EDGE_RAMP,
     uncertainty_cents: ArrayLike | None = None,
 ) -> Plan:
-    """Plan up to ``steps`` cuts that bring ``now_hz`` (one per goal) toward the goals.
+    """Plan up to ``steps`` cuts within ``limits`` that bring ``now_hz`` (one per goal)
+    toward the goals.
 
     ``bar`` is the current geometry with the fitted material; lengths in metres.
     ``uncertainty_cents`` (one standard deviation per goal, NaN or None: exact) makes "in
     tune" mean within tolerance with two standard deviations to spare (at most half the
     tolerance is given up), so a reading just inside the band is not taken for done.
     """
+    width, symmetric, ramp = limits.width, limits.symmetric, limits.ramp
     goals = tuple(goals)
     f_now = np.asarray(now_hz, dtype=float)
     tau = np.array([g.tolerance_cents for g in goals])
@@ -642,9 +643,9 @@ def plan_cuts(
     for _ in range(steps):
         if np.all(np.abs(e) <= tau_done):
             break
-        lo, hi = _bounds(e, tau, closure)
-        room = np.array([thinnest(current, w) - min_thickness for w in windows])
-        choice = _choose(e, an.S, tau, lo, hi, room, max_step_depth, lengths)
+        lo, hi = _bounds(e, tau, limits.closure)
+        room = np.array([thinnest(current, w) - limits.min_thickness for w in windows])
+        choice = _choose(e, an.S, tau, lo, hi, room, limits.max_step_depth, lengths)
         if choice is None:
             reason = _why_stuck(e, an.S, tau, lo, hi, room)
             break
@@ -819,7 +820,7 @@ def shortening_option(
         t_b, g_b = t_new, short_of(t_new)
     trim = min(float(np.ceil(t_b / 1e-4) * 1e-4), limit)  # whole tenths of a mm, sharp side
     raised = rise(trim)
-    predicted = f_now * 2.0 ** (raised / 1200.0)
+    predicted = f_now * cents_to_ratio(raised)
     return Shortening(trim, bar.length - 2 * trim, predicted, _cents(predicted, goals), raised)
 
 
@@ -844,22 +845,15 @@ def advise(
     bar: Bar,
     goals: Sequence[Goal],
     f_hz: ArrayLike,
+    options: AdviceOptions,
     sd_cents: ArrayLike | None = None,
-    *,
-    width: float = 0.02,
-    max_step_depth: float = 5e-4,
-    min_thickness: float,
-    steps: int = 3,
-    symmetric: bool = True,
-    closure: float = CLOSURE,
-    theory: str = "timoshenko",
-    identification_cents: float = 30.0,
 ) -> Advice:
     """Fit the material to measured partials ``f_hz`` on the current ``bar`` and plan cuts.
 
     ``goals`` are the tuned partials (bending or torsion); ``sd_cents`` the partials'
     measurement uncertainties (one standard deviation; NaN: unknown); lengths in metres.
     """
+    theory = options.theory
     goals = tuple(goals)
     bad = [g.label for g in goals if g.family not in ("bending", "torsion")]
     if bad:
@@ -875,7 +869,7 @@ def advise(
         f_hz,
         sd_cents,
         theory=theory,
-        tolerance_cents=identification_cents,
+        tolerance_cents=options.identification_cents,
         counts=counts,
     )
     fitted = replace(bar, material=replace(bar.material, E=cal.E, G=cal.G))
@@ -899,12 +893,8 @@ def advise(
         fitted,
         goals,
         now,
-        width=width,
-        max_step_depth=max_step_depth,
-        min_thickness=min_thickness,
-        steps=steps,
-        symmetric=symmetric,
-        closure=closure,
+        options.limits,
+        steps=options.steps,
         theory=theory,
         uncertainty_cents=uncertainty,
     )

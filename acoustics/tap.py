@@ -20,9 +20,11 @@ leaves no sidelobes), zero-padded four times and transformed. A local maximum is
 partial when it stands ``min_snr_db`` above the noise floor, has ``min_prominence_db`` of
 prominence and lies within ``dynamic_range_db`` of the strongest peak. The noise floor is the
 median of the dB spectrum in bands 1/6 octave or 25 Hz wide, whichever is wider, lowered to
-the smallest such median within two bands either side so that a broad line cannot raise its
-own floor. Quadratic interpolation of the dB spectrum gives a first frequency (Smith 2011,
-"quadratic interpolated FFT").
+what the neighbouring bands show on both sides (the higher of the smallest median within two
+bands to the left and within two to the right), so that a broad line cannot raise its own
+floor while a steep slope of the noise (lower on one side only) cannot lower it. Quadratic
+interpolation of the dB spectrum gives a first frequency (Smith 2011, "quadratic interpolated
+FFT").
 
 Refinement
 ----------
@@ -176,10 +178,15 @@ def _noise_floor_db(f: NDArray[np.float64], P_db: NDArray[np.float64]) -> NDArra
             medians.append(np.median(P_db[i0:i1]))
     if not centres:
         return np.full_like(P_db, np.median(P_db))
-    # A broad (short-ringing) line can fill its own band: take the lowest median of the band
-    # and two bands either side, which a line cannot fill.
+    # A broad (short-ringing) line can fill its own band, but not the bands either side: lower
+    # the floor to what the bands on both sides show (the higher of the lowest two to the left
+    # and the lowest two to the right), so a steep slope of the noise itself (a recorder's
+    # anti-aliasing roll-off), lower on one side only, does not lower its own floor.
     med = np.asarray(medians)
-    low = np.array([med[max(0, i - 2) : i + 3].min() for i in range(med.size)])
+    low = np.empty(med.size)
+    for i in range(med.size):
+        sides = [side.min() for side in (med[max(0, i - 2) : i], med[i + 1 : i + 3]) if side.size]
+        low[i] = min(med[i], max(sides)) if sides else med[i]
     return np.interp(f, np.asarray(centres), low)
 
 

@@ -23,10 +23,15 @@ For a uniform free-free Euler-Bernoulli bar, every ``w_k`` normalised to ``int w
 Shape*, table 8-1, from memory), so a strike and a listener at one end give every bending mode
 the same ``a_k = 4 / (rho A L)``; the tests check this.
 
-Decays: ``tau_k = 1 / (pi f_k eta)`` from the material loss factor (``tonewright.synth``).
+Decays: ``tau_k = 1 / (pi f_k eta)`` from the material loss factor (``acoustics.synth``).
+
+Sound: each mode rings at ``|a_k P(f_k)|``, ``P`` the half-sine pulse spectrum of the
+mallet (``acoustics.synth.half_sine_spectrum``); modes more than 80 dB below the loudest are
+listed as not excited (the strike or the listening point sits on a node) and the rest are
+summed by ``acoustics.synth.modal_strike``.
 
 Mallets: the contact time of a mallet on a bar sets how far up the partials are excited
-(``tonewright.synth.half_sine_spectrum``): soft yarn about 2 ms, medium about 1 ms, hard
+(``acoustics.synth.half_sine_spectrum``): soft yarn about 2 ms, medium about 1 ms, hard
 plastic or rubber about 0.4 ms (common practice, no source; Fletcher & Rossing, *The Physics
 of Musical Instruments*, 2nd ed., 1998, ch. 19 discuss contact times of this order, from
 memory).
@@ -38,23 +43,26 @@ from dataclasses import dataclass
 
 import numpy as np
 from numpy.typing import NDArray
+from tonewright.acoustics.synth import decay_from_loss_factor, half_sine_spectrum, modal_strike
+from tonewright.forward import Bar, ModalResult, Part, String, Tube, mass_per_length
 
 from tonewright.errors import InputError
-from tonewright.forward import Bar, ModalResult, Part, String, Tube
-from tonewright.forward.modal import section_coefficients
-from tonewright.synth import decay_from_loss_factor
 
 __all__ = [
+    "AUDIBLE_HZ",
     "MALLET_CONTACT_S",
     "PreviewMode",
+    "StrikeSound",
     "excited_families",
-    "mallet_contact_s",
     "modal_masses",
     "preview_modes",
+    "strike_sound",
 ]
 
 MALLET_CONTACT_S = {"soft": 2.0e-3, "medium": 1.0e-3, "hard": 0.4e-3}  # common practice
-_CONTACT_MS_RANGE = (0.05, 20.0)
+AUDIBLE_HZ = 20_000.0  # highest partial worth synthesising (upper limit of hearing)
+NYQUIST_MARGIN = 0.45  # keep partials below this fraction of the sample rate
+SILENT_DB = -80.0  # a mode this far below the strongest is listed as not excited
 _QUADRATURE_POINTS = 2001  # Simpson on this many points: far below a dB for any mode solved
 
 
@@ -78,24 +86,6 @@ def excited_families(part: Part) -> tuple[str, ...]:
     return ("bending", "torsion")
 
 
-def mallet_contact_s(choice: str) -> float:
-    """Contact time (s) of ``soft``, ``medium``, ``hard`` or a number of milliseconds."""
-    key = choice.strip().lower()
-    if key in MALLET_CONTACT_S:
-        return MALLET_CONTACT_S[key]
-    try:
-        ms = float(key.removesuffix("ms").strip())
-    except ValueError:
-        ms = float("nan")
-    lo, hi = _CONTACT_MS_RANGE
-    if not lo <= ms <= hi:
-        raise InputError(
-            f"--mallet {choice!r}: choose soft, medium, hard or a contact time of "
-            f"{lo:g} to {hi:g} ms"
-        )
-    return ms * 1e-3
-
-
 def _simpson(y: NDArray[np.float64], x: NDArray[np.float64]) -> NDArray[np.float64]:
     """Composite Simpson rule along the last axis on an odd number of equal steps."""
     h = x[1] - x[0]
@@ -107,28 +97,22 @@ def _simpson(y: NDArray[np.float64], x: NDArray[np.float64]) -> NDArray[np.float
 def modal_masses(part: Part, result: ModalResult) -> NDArray[np.float64]:
     """``m_k`` of every mode of ``result`` with its shape as ``Mode.shape`` returns it."""
     x = np.linspace(0.0, part.length, _QUADRATURE_POINTS)
-    c = section_coefficients(part, x)
+    density = {fam: mass_per_length(part, fam, x) for fam in {m.family for m in result.modes}}
     out = np.empty(len(result.modes))
     for i, mode in enumerate(result.modes):
-        if mode.family == "torsion":
-            density = c["rhoIp"]
-        elif mode.family == "transverse":
-            density = c["mu"]
-        else:
-            density = c["rhoA"]
-        out[i] = _simpson(density * mode.shape(x) ** 2, x)
+        out[i] = _simpson(density[mode.family] * mode.shape(x) ** 2, x)
     return out
 
 
 def _check_point(part: Part, x: float, y: float, what: str) -> None:
     L = part.length
     if not 0.0 <= x <= L:
-        raise InputError(f"--{what}-at {x * 1e3:g} mm: must lie on the part, 0 to {L * 1e3:g} mm")
+        raise InputError(f"{what} x {x * 1e3:g} mm: must lie on the part, 0 to {L * 1e3:g} mm")
     if isinstance(part, Bar):
         half = 0.5 * float(part.width(np.array([x]))[0])
         if abs(y) > half:
             raise InputError(
-                f"--{what}-offset {y * 1e3:g} mm: must lie on the bar, within "
+                f"{what} y {y * 1e3:g} mm: must lie on the bar, within "
                 f"{half * 1e3:g} mm of the centre line there"
             )
 
@@ -168,3 +152,43 @@ def preview_modes(
             )
         )
     return tuple(out)
+
+
+@dataclass(frozen=True, eq=False)
+class StrikeSound:
+    """The synthesised strike, the modes played with their level (dB, strongest 0) and the
+    modes left out as not excited (more than 80 dB down: a node under the strike or the ear)."""
+
+    samples: NDArray[np.float64]
+    rate: int
+    played: tuple[tuple[PreviewMode, float], ...]
+    silent: tuple[PreviewMode, ...]
+
+
+def strike_sound(
+    modes: tuple[PreviewMode, ...], contact_s: float, rate: int, duration_s: float
+) -> StrikeSound:
+    """Sum of the audible ``modes`` (below 20 kHz and 0.45 ``rate``) struck by a half-sine
+    pulse of ``contact_s``: ``duration_s`` seconds at ``rate``, peaking at -1 dBFS."""
+    top = min(AUDIBLE_HZ, NYQUIST_MARGIN * rate)
+    audible = [m for m in modes if m.frequency_hz < top]
+    if not audible:
+        raise InputError(f"rate {rate} Hz: every partial lies above {top:g} Hz")
+    f = np.array([m.frequency_hz for m in audible])
+    a = np.array([m.amplitude for m in audible])
+    level = np.abs(a * half_sine_spectrum(f, contact_s))
+    if not np.max(level) > 0:
+        raise InputError("the strike excites none of the modes: move the strike off the nodes")
+    db = 20.0 * np.log10(np.maximum(level, 1e-300) / np.max(level))
+    keep = db > SILENT_DB
+    samples = modal_strike(
+        f[keep],
+        a[keep],
+        np.array([m.decay_s for m in audible])[keep],
+        rate=rate,
+        duration_s=duration_s,
+        mallet_contact_s=contact_s,
+    )
+    played = tuple((m, float(d)) for m, d, k in zip(audible, db, keep, strict=True) if k)
+    silent = tuple(m for m, k in zip(audible, keep, strict=True) if not k)
+    return StrikeSound(samples, rate, played, silent)

@@ -2,7 +2,8 @@
 
 Model
 -----
-A blank of known dimensions and density is a Timoshenko beam (``forward.modal``). For a bar of
+A blank of known dimensions and density is a Timoshenko beam (``forward.modal``; the split
+stiffness matrices below come from ``forward.moduli_split``). For a bar of
 one material every stiffness term is E or G times a geometric factor (E I, E A: E; kappa G A,
 G J: G), supports add a constant (cords), and the mass matrix does not depend on either
 modulus. So, per family f (bending, torsion, lateral), with reference moduli E_0 and G_0,
@@ -25,7 +26,7 @@ Unknowns x = (ln E, ln G), or ln E alone with G = G_0 E / E_0 (the base material
 when no measured partial carries shear information (neither a torsional partial nor a third or
 higher bending partial). Residuals in cents, one per identified partial i,
 
-    r_i = 1200 log2(f_model,i / f_measured,i) / s_i,
+    r_i = 1200 log2(f_model,i / f_measured,i) / s_i   (``acoustics.pitch.CENTS_PER_LN`` ln),
 
 are minimised by ``scipy.optimize.least_squares`` (trust-region reflective) with the analytic
 Jacobian J_ij = (1200 / ln 2) (d ln f_i / d x_j) / s_i. Covariance (Press et al., *Numerical
@@ -73,12 +74,13 @@ import numpy as np
 import scipy.linalg
 from numpy.typing import ArrayLike, NDArray
 from scipy.optimize import least_squares, linear_sum_assignment
+from tonewright.acoustics.pitch import CENTS_PER_LN
+from tonewright.forward import Bar, moduli_split, solve
 
 from tonewright.errors import InputError
-from tonewright.forward.geometry import Bar
-from tonewright.forward.modal import assemble_family, discretise, section_coefficients, solve
 
 __all__ = [
+    "DEFAULT_COUNTS",
     "Calibration",
     "Hypothesis",
     "IdentifiedPartial",
@@ -91,9 +93,6 @@ __all__ = [
     "moduli_model",
 ]
 
-CENTS_PER_LN = 1200.0 / np.log(2.0)
-E_TERMS = ("EIy", "EIz", "EA")  # coefficients proportional to E
-G_TERMS = ("kGA", "kGAz", "GJ")  # coefficients proportional to G
 DEFAULT_COUNTS: Mapping[str, int] = {"bending": 6, "torsion": 1, "lateral": 1}
 MISSING_BENDING_PENALTY = 0.3  # score per lower bending mode absent from an assignment
 AMBIGUITY_MARGIN = 0.3  # a runner-up this close to the best score is reported
@@ -170,15 +169,6 @@ class ModuliModel:
         return np.concatenate(f), np.concatenate(dE), np.concatenate(dG)
 
 
-def _split(coefficients: Mapping[str, NDArray], keep: tuple[str, ...]) -> dict[str, NDArray]:
-    """Coefficients with the stiffness terms not in ``keep`` zeroed (mass terms untouched)."""
-    stiffness = set(E_TERMS) | set(G_TERMS)
-    return {
-        k: (v if k in keep or k not in stiffness else np.zeros_like(v))
-        for k, v in coefficients.items()
-    }
-
-
 def moduli_model(
     bar: Bar,
     counts: Mapping[str, int] = DEFAULT_COUNTS,
@@ -191,22 +181,14 @@ def moduli_model(
     moduli within the calibration's range change the mode shapes too little to need another.
     """
     reached = solve(bar, counts, tol_cents=tol_cents, theory=theory, initial_elements=4)
-    # the mesh solve() settled on: it asks for 4, 8, 16 ... elements and adds support nodes
-    target = 4
-    disc = discretise(bar, elements=target, degree=reached.degree, theory=theory)
-    while disc.n_elements < reached.elements:
-        target *= 2
-        disc = discretise(bar, elements=target, degree=reached.degree, theory=theory)
-    coefficients = section_coefficients(bar, disc.quad.x)
-    only_E, only_G = _split(coefficients, E_TERMS), _split(coefficients, G_TERMS)
+    names = [name for name, count in counts.items() if count > 0]
+    split = moduli_split(
+        bar, names, min_elements=reached.elements, degree=reached.degree, theory=theory
+    )
     families, labels = [], []
-    for name, count in counts.items():
-        if count <= 0:
-            continue
-        sys_E = assemble_family(bar, disc, name, only_E)
-        sys_G = assemble_family(bar, disc, name, only_G)
-        K_s = np.diag(sys_E.spring_diag)
-        Lc = scipy.linalg.cholesky(sys_E.M, lower=True, check_finite=False)
+    for name in names:
+        fam_split = split[name]
+        Lc = scipy.linalg.cholesky(fam_split.M, lower=True, check_finite=False)
 
         def reduce(K: NDArray, Lc: NDArray = Lc) -> NDArray:
             X = scipy.linalg.solve_triangular(Lc, K, lower=True, check_finite=False)
@@ -215,11 +197,11 @@ def moduli_model(
 
         fam = _Family(
             name=name,
-            count=min(count, sys_E.K.shape[0] - sys_E.n_rigid),
-            n_rigid=sys_E.n_rigid,
-            A_E=reduce(sys_E.K - K_s),
-            A_G=reduce(sys_G.K - K_s),
-            A_s=reduce(K_s),
+            count=min(counts[name], fam_split.M.shape[0] - fam_split.n_rigid),
+            n_rigid=fam_split.n_rigid,
+            A_E=reduce(fam_split.K_E),
+            A_G=reduce(fam_split.K_G),
+            A_s=reduce(fam_split.K_supports),
         )
         families.append(fam)
         labels += [(name, k + 1) for k in range(fam.count)]
