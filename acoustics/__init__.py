@@ -6,19 +6,12 @@ Pure functions on arrays; nothing here reads files, prints or imports the applic
 - ``tap``: the partials of one recorded strike (``find_partials`` -> ``TapResult``);
 - ``synth``: a mallet strike as a sum of decaying modes (``modal_strike``);
 - ``preview``: which modes a strike excites and how strongly (``preview_modes``), and the
-  sound they make (``strike_sound``).
+  sound they make (``strike_sound``). It builds on ``tonewright.forward`` (modal masses of a
+  solved part), so it is imported as ``tonewright.acoustics.preview``, not from here: the
+  other modules are leaves that ``forward`` itself uses (``pitch``).
 """
 
 from tonewright.acoustics.pitch import CENTS_PER_LN, cents, cents_to_ratio, ratio_to_cents
-from tonewright.acoustics.preview import (
-    MALLET_CONTACT_S,
-    PreviewMode,
-    StrikeSound,
-    excited_families,
-    modal_masses,
-    preview_modes,
-    strike_sound,
-)
 from tonewright.acoustics.synth import (
     decay_from_loss_factor,
     half_sine_spectrum,
@@ -29,21 +22,14 @@ from tonewright.acoustics.tap import Partial, TapResult, find_partials
 
 __all__ = [
     "CENTS_PER_LN",
-    "MALLET_CONTACT_S",
     "Partial",
-    "PreviewMode",
-    "StrikeSound",
     "TapResult",
     "cents",
     "cents_to_ratio",
     "decay_from_loss_factor",
-    "excited_families",
     "find_partials",
     "half_sine_spectrum",
-    "modal_masses",
     "modal_strike",
-    "preview_modes",
     "ratio_to_cents",
-    "strike_sound",
     "t60_from_decay",
 ]

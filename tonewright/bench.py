@@ -18,18 +18,16 @@ from typing import Any
 import numpy as np
 import tomli_w
 
-from tonewright.acoustics import (
-    CENTS_PER_LN,
+from tonewright.acoustics import CENTS_PER_LN, TapResult, find_partials
+from tonewright.acoustics.pitch import strike_note_hz
+from tonewright.acoustics.preview import (
     MALLET_CONTACT_S,
     PreviewMode,
     StrikeSound,
-    TapResult,
     excited_families,
-    find_partials,
     preview_modes,
     strike_sound,
 )
-from tonewright.acoustics.pitch import strike_note_hz
 from tonewright.audio import TapRecording, read_tap
 from tonewright.cli_support import parse_partials
 from tonewright.errors import InputError

@@ -3,8 +3,10 @@
 from __future__ import annotations
 
 from pathlib import Path
+from typing import TYPE_CHECKING
 
-from pydantic import ValidationError
+if TYPE_CHECKING:  # the numerics import this module: it must not pull in pydantic
+    from pydantic import ValidationError
 
 __all__ = ["InputError", "from_validation_error", "read_text_input", "union_tag"]
 

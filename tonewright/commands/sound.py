@@ -16,8 +16,9 @@ from rich import box
 from rich.console import Console
 from rich.table import Table
 
-from tonewright.acoustics import PreviewMode, t60_from_decay
+from tonewright.acoustics import t60_from_decay
 from tonewright.acoustics.pitch import hz_to_note
+from tonewright.acoustics.preview import PreviewMode
 from tonewright.audio import write_wav
 from tonewright.bench import SoundReport, SoundRequest, preview_sound
 from tonewright.cli_support import guarded
