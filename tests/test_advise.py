@@ -6,11 +6,12 @@ Evidence, by kind:
   uniform bar (Thomson, *Theory of Vibration with Applications*, Appendix D:
   f_n = (beta_n L)^2 / (2 pi L^2) sqrt(E I / (rho A)), so with I / A = h^2 / 12 every
   frequency is proportional to h);
-- facts of the trade (REFERENCES.md "Mallet-instrument practice", common practice, no
+- facts of the trade (mallet-instrument practice: common practice, no
   source): removal at the centre lowers the fundamental most; removal at the ends raises the
   partials; shortening the bar raises every partial;
 - a derived fact: the second free-free mode is antisymmetric with a node at 0.5 L
-  (REFERENCES.md, free-free node positions), so removal at the centre barely moves it;
+  (free-free node positions, derived from the exact Euler-Bernoulli mode shape), so removal at the
+  centre barely moves it;
 - the planning rules (removal only, under-shoot, minimum thickness) checked on re-solved
   predictions, and one failing-input test per validation rule of the command.
 """

@@ -124,10 +124,11 @@ def test_slopes_match_finite_differences_and_scaling_laws(model):
     # Dimensional analysis (derived): E and G scaled together by c scale every frequency of a
     # free bar by sqrt(c), so the two slopes add up to 1/2.
     assert np.allclose(dE + dG, 0.5, atol=1e-9)
-    # St-Venant torsion f_n = (n / 2L) sqrt(G J / (rho I_p)) (REFERENCES.md, standard): G only.
+    # St-Venant torsion f_n = (n / 2L) sqrt(G J / (rho I_p)) (Timoshenko & Goodier (1970), Theory of
+    # Elasticity, sec. 109, with I_p = b h (b^2 + h^2) / 12): G only.
     t = model.labels.index(("torsion", 1))
     assert dG[t] == pytest.approx(0.5, abs=1e-9)
-    # Shear lowers higher bending modes more (Timoshenko 1921; REFERENCES.md: about 12-15 % on
+    # Shear lowers higher bending modes more (Timoshenko 1921; derived: about 12-15 % on
     # the third partial of a wood blank): the G-slope grows with the bending order.
     bend = [dG[model.labels.index(("bending", k))] for k in (1, 2, 3, 4)]
     assert all(b > a > 0 for a, b in itertools.pairwise(bend))
@@ -220,7 +221,8 @@ def test_without_shear_information_G_keeps_the_base_ratio(truth):
 # ASTM E1876-15, "Standard Test Method for Dynamic Young's Modulus, Shear Modulus, and Poisson's
 # Ratio by Impulse Excitation of Vibration", flexural mode of a rectangular bar (from memory):
 #   E = 0.9465 (m f1^2 / b) (L^3 / t^3) T1 = 0.9465 rho L^4 f1^2 / t^2 T1,
-# 0.9465 = 48 pi^2 / 4.73004^4 (Euler-Bernoulli, free-free, REFERENCES.md: Thomson Table D.1),
+# 0.9465 = 48 pi^2 / 4.73004^4 (Euler-Bernoulli, free-free, Thomson, Theory of Vibration with
+# Applications, Table D.1),
 # with the finite-thickness correction (Spinner & Tefft 1961, as given in the standard)
 #   T1 = 1 + 6.585 (1 + 0.0752 mu + 0.8109 mu^2)(t/L)^2 - 0.868 (t/L)^4
 #          - 8.340 (1 + 0.2023 mu + 2.173 mu^2)(t/L)^4 / (1 + 6.338 (1 + 0.1408 mu + 1.536 mu^2)
@@ -268,7 +270,8 @@ def test_isotropic_bar_agrees_with_e1876():
 
 
 def test_wood_needs_more_shear_correction_than_e1876(truth):
-    # Wood's E/G near 13 (REFERENCES.md: 10-16) against 2.7 for an isotropic solid: the
+    # Wood's E/G near 13 (10-16: Forest Products Laboratory (2010), Wood Handbook, FPL-GTR-190,
+    # Table 5-1, from memory) against 2.7 for an isotropic solid: the
     # isotropic T1 under-corrects, so E from the beam fit lies above E1876 with T1.
     cal = calibrate_bar(start_blank(), truth)
     slender = e1876_slender(RHO, L, H, truth[0])

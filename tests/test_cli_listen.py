@@ -70,7 +70,7 @@ def test_json_from_every_format(tmp_path, rate, subtype, channels):
 
 def test_table_shows_notes_cents_and_ratios(tmp_path):
     # A4 = 440 Hz (ISO 16:1975) and a partial three octaves and a major third up (ratio 10,
-    # the marimba third-partial target; REFERENCES.md, trade).
+    # the marimba third-partial target; common practice, no source).
     path = tmp_path / "a4.wav"
     y = modal_strike([440.0, 4400.0], [1.0, 0.3], [1.0, 0.4], rate=22050, duration_s=1.0)
     sf.write(path, y, 22050, subtype="PCM_24")
@@ -89,7 +89,7 @@ def test_table_shows_notes_cents_and_ratios(tmp_path):
 def test_chime_reports_the_strike_note(tmp_path):
     # A free-free tube: bending modes in the ratios (beta_n L)^2 of the uniform free-free beam,
     # 4.73004074, 7.85320462, 10.99560784, 14.13716549, 17.27875966 (Thomson, Theory of
-    # Vibration, App. D; REFERENCES.md) and the 6th root 20.42035225 (derived, (2n+1) pi / 2).
+    # Vibration, App. D, Tables D.1-D.2) and the 6th root 20.42035225 (derived, (2n+1) pi / 2).
     beta = np.array([4.73004074, 7.85320462, 10.99560784, 14.13716549, 17.27875966, 20.42035225])
     f = 120.0 * (beta / beta[0]) ** 2
     rng = np.random.default_rng(5)

@@ -73,7 +73,7 @@ def test_json_shape_and_values_for_the_demo_bar(demo_payload):
     # demo's cords sit symmetrically at 90 and 310 mm of 400 mm).
     left, right = first["nodes_mm"]
     assert left + right == pytest.approx(400.0, abs=2e-3)
-    # Notes: 12-TET names at A4 = 440 Hz (pitch standard, REFERENCES.md); offset in [-50, 50).
+    # Notes: 12-TET names at A4 = 440 Hz (ISO 16:1975 standard pitch); offset in [-50, 50).
     f = first["frequency_hz"]
     semitones = 12 * np.log2(f / 440.0)
     assert first["cents"] == pytest.approx(100 * (semitones - np.round(semitones)), abs=1e-3)
@@ -95,7 +95,8 @@ def test_bad_options_exit_2_with_one_line(args):
 
 def test_tube_file(tmp_path):
     # A brass chime, Euler-Bernoulli theory chosen in the file's [model] table: the first
-    # partial follows the free-free beam with I = pi (Do^4 - Di^4)/64 (REFERENCES.md), beta L =
+    # partial follows the free-free beam with I = pi (Do^4 - Di^4)/64 (second moment of an annulus,
+    # standard), beta L =
     # 4.73004074 (Thomson, App. D). Library brass is read back from the library itself.
     raw = {
         "title": "Chime for the workshop door",
@@ -113,7 +114,8 @@ def test_tube_file(tmp_path):
     f1 = 4.73004074**2 / (2 * np.pi * L**2) * np.sqrt(mat.E * I_over_A / mat.rho)
     bending = [m for m in payload["modes"] if m["family"] == "bending"]
     assert bending[0]["frequency_hz"] == pytest.approx(f1, rel=REL_F)
-    # hung at the first mode's nodes, 0.22416 L from each end (derived, REFERENCES.md)
+    # hung at the first mode's nodes, 0.22416 L from each end (derived from the exact
+    # Euler-Bernoulli mode shape)
     assert bending[0]["nodes_mm"] == pytest.approx([0.22416 * 900, 0.77584 * 900], abs=0.01)
 
 

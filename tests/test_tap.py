@@ -19,7 +19,7 @@ from tonewright.errors import InputError
 CI = settings(deadline=None, derandomize=True, database=None, max_examples=12)
 
 # Target accuracy: 0.2 cent, five times finer than the ~1 cent that professional tuners quote
-# for a fundamental (REFERENCES.md, mallet-instrument practice: common practice, no source).
+# for a fundamental (mallet-instrument practice: common practice, no source).
 CENT_TOL = 0.2
 
 

@@ -42,7 +42,8 @@ def test_targets_dir_holds_the_library():
 @pytest.mark.parametrize("name", sorted(REQUIRED))
 def test_library_profiles(name):
     profile = load_target(name)
-    # Trade targets (REFERENCES.md, "Mallet-instrument practice", common practice): marimba
+    # Trade targets (common practice, no source; Fletcher & Rossing (1998), The Physics of Musical
+    # Instruments, 2nd ed., ch. 19, from memory): marimba
     # 1:4:10, xylophone 1:3(:6), vibraphone 1:4, strings the harmonic series (ideal string).
     assert profile.ratios == REQUIRED[name]
     assert profile.name == name  # the file name and the name inside agree

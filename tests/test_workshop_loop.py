@@ -1,10 +1,10 @@
 """The simulated workshop: tap, advise, cut one step, tap again, on a virtual bar.
 
 The virtual bar's TRUE material differs from the library's (E 6 % stiffer, G 4 % softer), as
-wood does (REFERENCES.md: woods scatter by +-20 %; calibrate from a tap). Its undercut was
-designed on the library material with the optimizer and rough-cut short (the depth scaled by
-0.99), so it starts sharp, as makers rough-tune (REFERENCES.md "Mallet-instrument practice":
-rough-tune slightly sharp, then lower each partial selectively; common practice, no source).
+wood does (woods scatter by about +-20 % from board to board: common practice, no source;
+calibrate from a tap). Its undercut was designed on the library material with the optimizer and
+rough-cut short (the depth scaled by 0.99), so it starts sharp, as makers rough-tune (rough-tune
+slightly sharp, then lower each partial selectively: common practice, no source).
 A "tap" is the true bar's forward-model partials (bending 1-3 and the first torsional mode,
 which a tap near an edge excites) with 0.2 cent of measurement noise; each round cuts the
 first advised step exactly as advised.
