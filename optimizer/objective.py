@@ -30,6 +30,7 @@ from dataclasses import dataclass, field
 from types import MappingProxyType
 
 import numpy as np
+from tonewright.acoustics.pitch import cents
 from tonewright.forward.geometry import Part
 from tonewright.forward.modal import (
     Discretisation,
@@ -217,6 +218,10 @@ class Evaluator:
         with this mesh), or to ``degree`` when that is higher."""
         return self._derived(degree=max(self.degree + 2 if degree is None else degree, self.degree))
 
+    def goals_hz(self) -> np.ndarray:
+        """The goals' target frequencies (Hz), which may be shifted from ``partials_hz``."""
+        return np.array([g.f_hz for g in self.goals])
+
     def _ratios(self, family: str, n: int) -> np.ndarray:
         r = self.unwanted_scale.get(family)
         if r is None or r.size == 0:
@@ -235,7 +240,8 @@ class Evaluator:
                 hi = lowest_modes(system, count)[0]
                 lo = lowest_modes(system, count, subspace=np.flatnonzero(system.lower))[0]
                 n = min(hi.size, lo.size)
-                worst = max(worst, float(np.max(600 * np.log2(lo[:n] / hi[:n]))))
+                # eigenvalues: half their interval in cents is the frequencies'
+                worst = max(worst, float(np.max(0.5 * cents(lo[:n], hi[:n]))))
             if worst <= self.mesh_tol_cents:
                 return p
         return 12
@@ -354,9 +360,7 @@ class Evaluator:
             return cached
         part, disc, modes = self._solve(u, log)
         achieved, uses = self._frequencies(modes)
-        errors = np.array(
-            [CENTS_PER_LN * np.log(f / g.f_hz) for f, g in zip(achieved, self.goals, strict=True)]
-        )
+        errors = cents(achieved, self.goals_hz())
         scale = np.array([g.weight / g.tolerance_cents for g in self.goals])
         unwanted, hinge, which, clearance_ok = self._unwanted(modes, self.partials_hz)
         cw = self.clearance.weight if self.clearance else 0.0

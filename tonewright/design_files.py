@@ -177,7 +177,7 @@ WRITERS: tuple[Callable[[DesignReport], dict[str, bytes]], ...] = (
 def design_files(report: DesignReport) -> dict[str, bytes]:
     """Every output of a design, rendered in memory (name -> bytes)."""
     files: dict[str, bytes] = {}
-    for writer in WRITERS:
+    for writer in WRITERS:  # looked up at call time, so a test can break one
         files.update(writer(report))
     return files
 
