@@ -18,7 +18,7 @@ import numpy as np
 from tonewright.errors import InputError
 from tonewright.forward import Bar, String, families_of, solve
 from tonewright.partfile import PartFile, load_part
-from tonewright.shop import ShopPart
+from tonewright.shop import ShopPart, TubeCut, WoundString
 
 __all__ = [
     "MISSED_MARK",
@@ -28,7 +28,13 @@ __all__ = [
     "load_shop_source",
     "marked_missed",
     "shop_part",
+    "tube_cut_of",
+    "wound_string_of",
 ]
+
+STEEL_DENSITY = 7850.0  # kg/m^3, the string's core (common practice, no source)
+COPPER_DENSITY = 8960.0  # kg/m^3, the winding (common practice, no source)
+WRAP_DIAMETER = 0.3e-3  # m
 
 MISSED_MARK = "MISSED DESIGN"
 
@@ -147,4 +153,39 @@ def marked_missed(shop: ShopPart, message: str) -> ShopPart:
         shop,
         title=f"{shop.title} - {MISSED_MARK}",
         notes=(f"{MISSED_MARK}: this design misses its target ({message}).", *shop.notes),
+    )
+
+
+def tube_cut_of(source: ShopSource, name: str) -> TubeCut:
+    """The cut sheet entry of a tube: length, section, suspension node, predicted pitch."""
+    part_file, part, modal = source.part_file, source.part, source.modal
+    nodes = modal.family("bending")[0].nodes_m
+    return TubeCut(
+        name=name,
+        length_m=part.length,
+        outer_diameter_m=part_file.tube.outer_diameter,
+        wall_m=part_file.tube.wall,
+        node_from_top_m=nodes[0],
+        node_tolerance_m=0.5e-3,
+        material_name=(part_file.material_spec(None).name if part_file.material else ""),
+        predicted_hz=modal.frequency("bending", 1),
+    )
+
+
+def wound_string_of(part_file: PartFile, name: str) -> WoundString:
+    """A string's winding schedule: a steel core at its lightest density, copper wrap."""
+    s = part_file.string
+    if not s.density_profile:
+        raise InputError("string: a winding schedule needs density_profile stations")
+    x, mu = np.array(s.density_profile).T
+    core_mu = float(mu.min())
+    return WoundString(
+        title=name,
+        length_m=s.length,
+        stations_x_m=tuple(x),
+        linear_density_kg_m=tuple(mu),
+        core_diameter_m=np.sqrt(4 * core_mu / (np.pi * STEEL_DENSITY)),
+        core_density_kg_m3=STEEL_DENSITY,
+        wrap_diameter_m=WRAP_DIAMETER,
+        wrap_density_kg_m3=COPPER_DENSITY,
     )

@@ -6,7 +6,6 @@ from __future__ import annotations
 from pathlib import Path
 from typing import Annotated, Literal
 
-import numpy as np
 import typer
 
 from tonewright.cli_support import atomic_write_text, guarded, prepare_out_dir
@@ -16,14 +15,18 @@ from tonewright.shop import (
     Cutter,
     GcodeOptions,
     ShopOptions,
-    TubeCut,
-    WoundString,
     tube_cut_list_csv,
     tube_cut_sheet,
     winding_schedule_csv,
     write_all,
 )
-from tonewright.shop_run import MISSED_MARK, load_shop_source, marked_missed
+from tonewright.shop_run import (
+    MISSED_MARK,
+    load_shop_source,
+    marked_missed,
+    tube_cut_of,
+    wound_string_of,
+)
 
 __all__ = ["ACCEPT_MISSED", "register"]
 
@@ -66,7 +69,7 @@ def register(app: typer.Typer) -> None:
         if not 0.5 <= spacing <= 100:
             raise InputError(f"--spacing {spacing}: give 0.5 to 100 mm")
         source = load_shop_source(file)
-        part_file, part, shop, modal = source.part_file, source.part, source.shop, source.modal
+        part_file, part, shop = source.part_file, source.part, source.shop
         missed = source.design is not None and not source.design.converged
         mark = ""
         if missed:
@@ -97,38 +100,14 @@ def register(app: typer.Typer) -> None:
             )
             written = write_all(shop, out, options, force=force)
         elif isinstance(part, Tube):
-            nodes = modal.family("bending")[0].nodes_m
-            cut = TubeCut(
-                name=(part_file.title or file.stem) + mark,
-                length_m=part.length,
-                outer_diameter_m=part_file.tube.outer_diameter,
-                wall_m=part_file.tube.wall,
-                node_from_top_m=nodes[0],
-                node_tolerance_m=0.5e-3,
-                material_name=(part_file.material_spec(None).name if part_file.material else ""),
-                predicted_hz=modal.frequency("bending", 1),
-            )
+            cut = tube_cut_of(source, (part_file.title or file.stem) + mark)
             names = ["tube_cut_sheet.txt", "tube_cut_list.csv"]
             out = prepare_out_dir(out, names, force=force)
             atomic_write_text(out / names[0], tube_cut_sheet([cut]), overwrite=True)
             atomic_write_text(out / names[1], tube_cut_list_csv([cut]), overwrite=True)
             written = [out / n for n in names]
         else:
-            s = part_file.string
-            if not s.density_profile:
-                raise InputError("string: a winding schedule needs density_profile stations")
-            x, mu = np.array(s.density_profile).T
-            core_mu = float(mu.min())
-            wound = WoundString(
-                title=(part_file.title or file.stem) + mark,
-                length_m=s.length,
-                stations_x_m=tuple(x),
-                linear_density_kg_m=tuple(mu),
-                core_diameter_m=np.sqrt(4 * core_mu / (np.pi * 7850.0)),
-                core_density_kg_m3=7850.0,
-                wrap_diameter_m=0.3e-3,
-                wrap_density_kg_m3=8960.0,
-            )
+            wound = wound_string_of(part_file, (part_file.title or file.stem) + mark)
             out = prepare_out_dir(out, ["winding_schedule.csv"], force=force)
             atomic_write_text(
                 out / "winding_schedule.csv", winding_schedule_csv(wound), overwrite=True
