@@ -171,3 +171,24 @@ def test_a_mode_only_the_high_fidelity_model_puts_in_a_band_is_not_certified():
     assert not out.converged
     assert out.steps[0].clear is False
     assert "unwanted mode" in out.message or "clearance" in " ".join(out.result.binding)
+
+
+def test_a_certifier_still_off_after_its_checks_is_a_miss_with_its_own_status():
+    # a stand-in model 40 cents flat everywhere, and a single check allowed: the beam design
+    # meets its goals, the certifier does not, and the one status says so (no second verdict)
+    from tonewright.optimizer.search import MISSED_CERTIFIER, STATUS_MESSAGES
+
+    space, goals = _space_and_goals()
+    ev = Evaluator(space, goals)
+    start = design(ev, SearchSettings(seed=1))
+    assert start.converged
+
+    def flat(u, gs):
+        return Evaluator(space, gs, degree=start.evaluator.degree).evaluate(u).achieved_hz * (
+            2.0 ** (-40.0 / 1200.0)
+        )
+
+    out = corrected_design(ev, start, flat, max_steps=1)
+    assert out.result.status == MISSED_CERTIFIER and not out.converged
+    assert "still" in out.message and "cents off" in out.message
+    assert MISSED_CERTIFIER in STATUS_MESSAGES

@@ -360,3 +360,24 @@ def test_a_miss_caused_by_the_clearance_names_it():
     held = design(Evaluator(space, goals, clear), settings)
     assert not held.converged
     assert any("clearance of unwanted modes" in b for b in held.binding), held.binding
+
+
+def test_design_leaves_the_evaluator_unchanged_and_counts_in_its_log():
+    # the objective is configuration (pycma's separation): a search may only change its log
+    from tonewright.optimizer import EvaluationLog
+
+    space = BarUndercut(_bar(ROSEWOOD), 0.022, min_thickness=0.004, end_keep=0.02)
+    goals = _goals(261.63, (1, 4, 10))
+    ev = Evaluator(space, goals)
+    degree, before = ev.degree, ev.goals
+    log = EvaluationLog()
+    result = design(ev, SearchSettings(seed=3), log=log)
+    assert result.converged
+    assert ev.degree == degree and ev.goals == before and dict(ev.unwanted_scale) == {}
+    assert log.solves == result.solves > 0
+    with pytest.raises(AttributeError):
+        ev.goals = ()
+    sharper = ev.with_goals([Goal("bending", g.order, 2 * g.f_hz) for g in goals])
+    assert sharper is not ev and ev.goals == before
+    assert np.array_equal(sharper.partials_hz, ev.partials_hz)  # the clearance's reference
+    assert ev.refined().degree == degree + 2 and ev.degree == degree
