@@ -236,3 +236,15 @@ def test_report_status_and_exit_code_come_from_the_optimizer_table(beam_report):
     assert all(exit_code(s) == 1 for s in STATUS_MESSAGES if s != MET)
     # every miss has its own message in the one table
     assert len(set(STATUS_MESSAGES.values())) == len(STATUS_MESSAGES)
+
+
+def test_report_crosses_a_process_boundary(beam_report):
+    # instrument workers hand reports back to the parent: plain picklable values
+    import pickle
+
+    again = pickle.loads(pickle.dumps(beam_report))
+    assert again.status == beam_report.status and again.partials == beam_report.partials
+    assert again.part == beam_report.part
+    from tonewright.design_files import design_files
+
+    assert design_files(again)["part.toml"] == design_files(beam_report)["part.toml"]

@@ -468,7 +468,7 @@ class DesignFigures:
     nodes_mm: tuple[float, ...]
 
 
-@dataclass(frozen=True)
+@dataclass(frozen=True, eq=False)
 class DesignReport:
     """A design as the workflow returns it: plain immutable values (picklable, so a worker
     process can hand it back), ready for the writers in ``tonewright.design_files``.

@@ -33,6 +33,7 @@ import io
 import json
 import multiprocessing
 import os
+import shutil
 import sys
 from collections.abc import Callable, Mapping, Sequence
 from concurrent.futures import ProcessPoolExecutor
@@ -601,7 +602,11 @@ def _stale_folders(out: Path, plan: InstrumentPlan) -> list[str]:
     if not bars.is_dir():
         return []
     current = {b.note for b in plan.bars}
-    return sorted(p.name for p in bars.iterdir() if p.is_dir() and p.name not in current)
+    return sorted(
+        p.name
+        for p in bars.iterdir()
+        if p.is_dir() and p.name not in current and not p.name.startswith(".")
+    )
 
 
 @dataclass(frozen=True)
@@ -651,6 +656,8 @@ def plan_run(
         "notes": [b.note for b in plan.bars],
     }
     atomic_write_text(out / MANIFEST, json.dumps(manifest, indent=2) + "\n", overwrite=True)
+    for staging in (out / BARS_DIR).glob(".*.tmp"):  # left by a run that was stopped
+        shutil.rmtree(staging, ignore_errors=True)
 
     plans: list[tuple[int, BarPlan, str, str | None, bool]] = []
     for i, b in enumerate(plan.bars):
