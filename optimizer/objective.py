@@ -20,6 +20,11 @@ Modes are identified within their family by shape as well as order: the modal as
 criterion (Allemang, R. J. & Brown, D. L., 1982, "A correlation coefficient for modal vector
 analysis", Proc. 1st IMAC, 110-116) against the starting design's shapes; in the decoupled
 beam families the two always agree, and a disagreement is reported.
+
+The ``Evaluator`` is configuration only (space, goals, clearance, mesh, weights) and never
+changes; variants (shifted goals, scaled unwanted modes, a finer mesh) are new evaluators.
+What evaluating changes (the solve counter, the shape reference for the MAC, a small cache)
+lives in an ``EvaluationLog`` the caller passes in (as pycma keeps parameters and state apart).
 """
 
 from __future__ import annotations
