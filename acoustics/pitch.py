@@ -51,6 +51,7 @@ from tonewright.errors import InputError
 
 __all__ = [
     "CENTS_PER_LN",
+    "STRIKE_MODES",
     "cents",
     "cents_to_ratio",
     "critical_bandwidth_hz",
@@ -65,9 +66,10 @@ __all__ = [
 ]
 
 _CENTS_PER_OCTAVE = 1200.0
-# cents per unit of natural logarithm: c = CENTS_PER_LN ln(f / f_ref) = 1200 log2(f / f_ref);
-# the form for derivatives, d c / d ln f = CENTS_PER_LN
-CENTS_PER_LN = _CENTS_PER_OCTAVE / math.log(2.0)
+
+STRIKE_MODES: tuple[tuple[int, float], ...] = ((4, 2.0), (5, 3.0), (6, 4.0))
+"""The strike-note rule's (bending mode, harmonic number) pairs: the strike note is the
+geometric mean of f_mode / harmonic over these (see the module docstring)."""
 _A4_MIDI = 69
 
 CENTS_PER_LN = float(_CENTS_PER_OCTAVE / np.log(2.0))
@@ -188,6 +190,6 @@ def strike_note_hz(partials_hz: ArrayLike) -> float:
         )
     if not np.all(np.isfinite(f)) or np.any(f <= 0) or np.any(np.diff(f) <= 0):
         raise InputError("partials_hz: give positive frequencies sorted upward, mode 1 first")
-    f456 = f[3:6]
-    harmonic = np.array([2.0, 3.0, 4.0])
-    return float(np.exp(np.mean(np.log(f456 / harmonic))))
+    modes = np.array([m for m, _ in STRIKE_MODES]) - 1
+    harmonic = np.array([h for _, h in STRIKE_MODES])
+    return float(np.exp(np.mean(np.log(f[modes] / harmonic))))

@@ -21,7 +21,14 @@ sys.path[:] = [p for p in sys.path if Path(p or ".").resolve() != _HERE]
 import numpy as np  # noqa: E402
 from threadpoolctl import threadpool_limits  # noqa: E402
 from tonewright.forward import Bar, constant  # noqa: E402
-from tonewright.optimizer import BarUndercut, Evaluator, Goal, SearchSettings, design  # noqa: E402
+from tonewright.optimizer import (  # noqa: E402
+    MET,
+    BarUndercut,
+    Evaluator,
+    Goal,
+    SearchSettings,
+    design,
+)
 
 from tonewright.materials import load_material  # noqa: E402
 
@@ -36,7 +43,7 @@ def one_design(seed: int) -> tuple[float, int, float, bool]:
     result = design(Evaluator(space, goals), SearchSettings(seed=seed))
     elapsed = time.perf_counter() - start
     worst = float(np.max(np.abs(result.evaluation.errors_cents)))
-    return elapsed, result.solves, worst, result.converged
+    return elapsed, result.solves, worst, result.status == MET
 
 
 def main() -> None:

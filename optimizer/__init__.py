@@ -1,7 +1,9 @@
 """Inverse design of bars, tubes and strings: search the geometry until partials meet goals.
 
-``Evaluator`` turns a design space and goals into residuals (cents) with analytic Jacobians;
-``design`` runs CMA-ES then a least-squares polish and returns a ``DesignResult``.
+``Evaluator`` (immutable configuration) turns a design space and goals into residuals (cents)
+with analytic Jacobians, counting its solves in an ``EvaluationLog``; ``design`` runs CMA-ES
+then a least-squares polish and returns a ``DesignResult`` whose integer ``status`` is one of
+``STATUS_MESSAGES``.
 On the bench: ``calibrate_bar`` fits E and G of a blank to its measured partials
 (``optimizer.calibration``); ``advise`` and ``plan_cuts`` plan the next cuts on a
 half-finished bar, ``tuning_map`` shows where removal moves each partial
@@ -28,12 +30,29 @@ from tonewright.optimizer.cutplan import (
     plan_cuts,
     tuning_map,
 )
-from tonewright.optimizer.objective import Clearance, Evaluation, Evaluator, Goal, UnwantedMode, mac
-from tonewright.optimizer.search import DesignResult, SearchSettings, design
+from tonewright.optimizer.objective import (
+    Clearance,
+    Evaluation,
+    EvaluationLog,
+    Evaluator,
+    Goal,
+    UnwantedMode,
+    mac,
+)
+from tonewright.optimizer.search import (
+    MET,
+    STATUS_MESSAGES,
+    DesignResult,
+    SearchSettings,
+    design,
+    exit_code,
+)
 from tonewright.optimizer.sensitivity import eigenvalue_gradients, mode_densities
 from tonewright.optimizer.spaces import BarUndercut, DesignField, StringDensity, TubeDesign
 
 __all__ = [
+    "MET",
+    "STATUS_MESSAGES",
     "Advice",
     "AdviceOptions",
     "BarUndercut",
@@ -46,6 +65,7 @@ __all__ = [
     "DesignField",
     "DesignResult",
     "Evaluation",
+    "EvaluationLog",
     "Evaluator",
     "Goal",
     "HighFidelityModes",
@@ -63,6 +83,7 @@ __all__ = [
     "corrected_design",
     "design",
     "eigenvalue_gradients",
+    "exit_code",
     "mac",
     "mode_densities",
     "plan_cuts",

@@ -18,11 +18,15 @@ high-fidelity solve.
 
 A high-fidelity model that also returns the clearance families' modes (``HighFidelityModes``,
 the 3D model) corrects those the same way: each beam mode is scaled by its high-fidelity
-ratio r_m = f_hi,m / f_beam,m at the current design (``Evaluator.set_unwanted_scale``), so
+ratio r_m = f_hi,m / f_beam,m at the current design (``Evaluator.with_unwanted_scale``), so
 the polish keeps the modes the high-fidelity model sees out of the bands, and the loop ends
 only when the high-fidelity modes themselves are clear. If the corrected beam model has no
 solution beside the current design, it is searched afresh; if that search fails too, the
 loop stops and reports the limit that binds.
+
+The evaluator passed in is never changed: each shifted goal set and each mode scaling is a new
+evaluator, and the solves are counted in an ``EvaluationLog``. The status of the result is
+decided by ``optimizer.search.certified_status``.
 """
 
 from __future__ import annotations
@@ -31,8 +35,16 @@ from collections.abc import Callable, Sequence
 from dataclasses import dataclass, replace
 
 import numpy as np
-from tonewright.optimizer.objective import Evaluator, Goal
-from tonewright.optimizer.search import DesignResult, SearchSettings, design, polish, verdict
+from tonewright.acoustics.pitch import cents, cents_to_ratio
+from tonewright.optimizer.objective import EvaluationLog, Evaluator, Goal
+from tonewright.optimizer.search import (
+    DesignResult,
+    SearchSettings,
+    certified_status,
+    design,
+    polish,
+    verdict,
+)
 
 __all__ = ["CorrectedDesign", "CorrectionStep", "HighFidelityModes", "corrected_design"]
 
@@ -61,14 +73,23 @@ class CorrectionStep:
 
 @dataclass(frozen=True, eq=False)
 class CorrectedDesign:
+    """The corrected design (its status decided once, in ``result.status``) and each
+    high-fidelity check on the way."""
+
     result: DesignResult
     steps: tuple[CorrectionStep, ...]
-    converged: bool
-    message: str
+
+    @property
+    def converged(self) -> bool:
+        return self.result.converged
+
+    @property
+    def message(self) -> str:
+        return self.result.message
 
 
-def _cents(a: np.ndarray, b: np.ndarray) -> np.ndarray:
-    return 1200.0 * np.log2(np.asarray(a) / np.asarray(b))
+def _at_degree(evaluator: Evaluator, degree: int) -> Evaluator:
+    return evaluator.refined(degree) if degree > evaluator.degree else evaluator
 
 
 def corrected_design(
@@ -78,96 +99,91 @@ def corrected_design(
     settings: SearchSettings | None = None,
     max_steps: int = 6,
     progress: Callable[[str, int, float], None] | None = None,
+    log: EvaluationLog | None = None,
 ) -> CorrectedDesign:
-    """Correct a beam-model design ``start`` until ``high_fidelity`` meets the goals."""
+    """Correct a beam-model design ``start`` until ``high_fidelity`` meets the goals.
+
+    ``evaluator`` (the real goals) is kept as it is, on the mesh ``start`` was judged on;
+    ``log`` continues the solve count (by default from ``start.solves``)."""
     settings = settings or SearchSettings()
+    log = EvaluationLog(solves=start.solves) if log is None else log
+    if start.evaluator is not None:
+        evaluator = _at_degree(evaluator, start.evaluator.degree)
     goals = tuple(evaluator.goals)
     tol = np.array([g.tolerance_cents for g in goals])
     target = np.array([g.f_hz for g in goals])
     u = start.u
-    result = start
     steps: list[CorrectionStep] = []
-    scale0 = dict(evaluator.unwanted_scale)
+    current = evaluator  # the beam model with shifted goals and scaled unwanted modes
     stuck = False
-    try:
-        for i in range(max_steps):
-            beam_ev = evaluator.evaluate(u)
-            beam = beam_ev.achieved_hz
-            seen = high_fidelity(u, goals)
-            clear = None
-            if isinstance(seen, HighFidelityModes):
-                hi = np.asarray(seen.goals_hz, dtype=float)
-                if evaluator.clearance is not None:
-                    # judge the clearance on the high-fidelity modes: scale each beam mode by
-                    # the ratio the high-fidelity model shows at this design
-                    evaluator.set_unwanted_scale(_mode_ratios(seen.families, beam_ev.family_hz))
-                    clear = evaluator.evaluate(u).clearance_ok
-            else:
-                hi = np.asarray(seen, dtype=float)
-            errors = _cents(hi, target)
-            defect = _cents(hi, beam)
-            steps.append(CorrectionStep(beam, hi, errors, defect, clear))
-            if progress:
-                progress("correct", evaluator.solves, float(np.max(np.abs(errors))))
-            if (np.all(np.abs(errors) <= tol) and clear is not False) or i == max_steps - 1:
-                break
-            if stuck:  # the corrected beam model had no solution: more checks cannot help
-                break
-            shifted = [
-                replace(g, f_hz=g.f_hz * 2.0 ** (-d / 1200.0))
-                for g, d in zip(goals, defect, strict=True)
-            ]
-            evaluator.set_goals(shifted)
-            u = polish(evaluator, u, settings, progress)
-            if not verdict(evaluator, u)[0]:
-                # the corrected beam model has no solution next to this design (typically an
-                # unwanted mode the high-fidelity model moved into a band): search it afresh,
-                # beam solves being cheap beside high-fidelity ones
-                fresh = replace(settings, budget=evaluator.solves + settings.budget)
-                again = design(evaluator, fresh, progress, start=u)
-                u, stuck = again.u, not again.converged
-        _, status, message, binding = verdict(evaluator, u)
-        if status == 1 and np.all(np.abs(steps[-1].errors_cents) <= tol):
-            # the beam misses its shifted goals by the defect's drift only: the model that
-            # certifies meets the real goals, so no limit binds
-            status, message, binding = 0, "every partial within tolerance", ()
-        result = replace(
-            start,
-            u=u,
-            evaluation=evaluator.evaluate(u),
-            converged=status == 0,
-            status=status,
-            message=message,
-            binding=binding,
-            solves=evaluator.solves,
-        )
-    finally:
-        evaluator.set_goals(goals)
-        evaluator.set_unwanted_scale(scale0)
+    for i in range(max_steps):
+        beam_ev = current.evaluate(u, log=log)
+        beam = beam_ev.achieved_hz
+        seen = high_fidelity(u, goals)
+        clear = None
+        if isinstance(seen, HighFidelityModes):
+            hi = np.asarray(seen.goals_hz, dtype=float)
+            if current.clearance is not None:
+                # judge the clearance on the high-fidelity modes: scale each beam mode by the
+                # ratio the high-fidelity model shows at this design
+                current = current.with_unwanted_scale(
+                    _mode_ratios(seen.families, beam_ev.family_hz)
+                )
+                clear = current.evaluate(u, log=log).clearance_ok
+        else:
+            hi = np.asarray(seen, dtype=float)
+        errors = cents(hi, target)
+        defect = cents(hi, beam)
+        steps.append(CorrectionStep(beam, hi, errors, defect, clear))
+        if progress:
+            progress("correct", log.solves, float(np.max(np.abs(errors))))
+        if (np.all(np.abs(errors) <= tol) and clear is not False) or i == max_steps - 1:
+            break
+        if stuck:  # the corrected beam model had no solution: more checks cannot help
+            break
+        shifted = [
+            replace(g, f_hz=g.f_hz * float(cents_to_ratio(-d)))
+            for g, d in zip(goals, defect, strict=True)
+        ]
+        current = current.with_goals(shifted)
+        u = polish(current, u, settings, progress, log)
+        if not verdict(current, u, log).met:
+            # the corrected beam model has no solution next to this design (typically an
+            # unwanted mode the high-fidelity model moved into a band): search it afresh,
+            # beam solves being cheap beside high-fidelity ones
+            fresh = replace(settings, budget=log.solves + settings.budget)
+            again = design(current, fresh, progress, start=u, log=log)
+            u, stuck = again.u, not again.converged
+            current = again.evaluator or current
+    evaluation = current.evaluate(u, log=log)
+    bad = [m for m in evaluation.unwanted if not m.clear]
+    detail = (
+        f": {bad[0].family} mode {bad[0].order} at {bad[0].f_hz:.1f} Hz, {bad[0].gap_hz:.1f} Hz "
+        f"from the {bad[0].nearest_goal} (keep {bad[0].band_hz:.0f} Hz clear)"
+        if bad
+        else ""
+    )
     last = steps[-1]
-    met = bool(np.all(np.abs(last.errors_cents) <= tol))
-    if met and last.clear is False:
-        met = False
-        bad = [m for m in result.evaluation.unwanted if not m.clear]
-        m = bad[0] if bad else None
-        message = "an unwanted mode is too near a partial in the certifying model" + (
-            f": {m.family} mode {m.order} at {m.f_hz:.1f} Hz, {m.gap_hz:.1f} Hz from the "
-            f"{m.nearest_goal} (keep {m.band_hz:.0f} Hz clear)"
-            if m
-            else ""
-        )
-    elif met and result.status in (0, 1):
-        message = f"meets every goal in the certifying model ({len(steps) - 1} correction(s))"
-    elif met:
-        message = result.message
-    else:
-        worst = int(np.argmax(np.abs(last.errors_cents) / tol))
-        message = (
-            f"after {len(steps)} high-fidelity checks {goals[worst].label} is still "
-            f"{last.errors_cents[worst]:+.2f} cents off (tolerance {tol[worst]:g})"
-        )
-    converged = met and result.status in (0, 1)
-    return CorrectedDesign(result=result, steps=tuple(steps), converged=converged, message=message)
+    judged = certified_status(
+        verdict(current, u, log),
+        last.errors_cents,
+        tol,
+        last.clear,
+        len(steps),
+        [g.label for g in goals],
+        detail,
+    )
+    result = replace(
+        start,
+        u=u,
+        evaluation=evaluation,
+        status=judged.status,
+        message=judged.message,
+        binding=judged.binding,
+        solves=log.solves,
+        evaluator=_at_degree(evaluator, current.degree),
+    )
+    return CorrectedDesign(result=result, steps=tuple(steps))
 
 
 def _mode_ratios(high: dict[str, np.ndarray], beam: dict[str, np.ndarray]) -> dict[str, np.ndarray]:

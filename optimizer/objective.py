@@ -20,14 +20,22 @@ Modes are identified within their family by shape as well as order: the modal as
 criterion (Allemang, R. J. & Brown, D. L., 1982, "A correlation coefficient for modal vector
 analysis", Proc. 1st IMAC, 110-116) against the starting design's shapes; in the decoupled
 beam families the two always agree, and a disagreement is reported.
+
+The ``Evaluator`` is configuration only (space, goals, clearance, mesh, weights) and never
+changes; variants (shifted goals, scaled unwanted modes, a finer mesh) are new evaluators.
+What evaluating changes (the solve counter, the shape reference for the MAC, a small cache)
+lives in an ``EvaluationLog`` the caller passes in (as pycma keeps parameters and state apart).
 """
 
 from __future__ import annotations
 
-from collections.abc import Callable, Sequence
+import itertools
+from collections.abc import Callable, Mapping, Sequence
 from dataclasses import dataclass, field
+from types import MappingProxyType
 
 import numpy as np
+from tonewright.acoustics.pitch import cents
 from tonewright.forward.geometry import Part
 from tonewright.forward.modal import (
     Discretisation,
@@ -38,7 +46,15 @@ from tonewright.forward.modal import (
 )
 from tonewright.optimizer.sensitivity import eigenvalue_gradients
 
-__all__ = ["Clearance", "Evaluation", "Evaluator", "Goal", "UnwantedMode", "mac"]
+__all__ = [
+    "Clearance",
+    "Evaluation",
+    "EvaluationLog",
+    "Evaluator",
+    "Goal",
+    "UnwantedMode",
+    "mac",
+]
 
 CENTS_PER_LN = 1200.0 / np.log(2.0)
 CLEAR_MARGIN = 0.01  # the clearance hinge pushes modes this fraction beyond the band
@@ -111,8 +127,39 @@ def mac(a: np.ndarray, b: np.ndarray) -> np.ndarray:
     return num / np.outer(np.sum(a * a, axis=0), np.sum(b * b, axis=0))
 
 
+@dataclass
+class EvaluationLog:
+    """What evaluating changes, kept apart from the objective (as pycma keeps its state apart
+    from its parameters): the forward solves counted, the mode shapes the partials are tracked
+    against (the first design evaluated, for the MAC), and a small cache of recent evaluations
+    keyed by the evaluator that made them. One log per search; the ``Evaluator`` never
+    changes."""
+
+    solves: int = 0
+    reference_shapes: dict[str, np.ndarray] | None = None
+    cache: dict[tuple[int, bytes], Evaluation] = field(default_factory=dict, repr=False)
+
+
+_TOKENS = itertools.count()
+
+
 class Evaluator:
-    """Evaluates a design space against goals, reusing the mesh while the length is fixed."""
+    """The objective: a design space, goals, the clearance and the mesh, fixed at construction.
+
+    It is immutable: ``with_goals``, ``with_unwanted_scale`` and ``refined`` return new
+    evaluators. What evaluating changes (the solve counter, the shape reference, a cache) lives
+    in an ``EvaluationLog`` passed to ``evaluate``; without one, a throwaway log is used."""
+
+    space: object
+    goals: tuple[Goal, ...]
+    partials_hz: np.ndarray
+    clearance: Clearance | None
+    theory: str
+    elements: int
+    mesh_tol_cents: float
+    counts: Mapping[str, int]
+    degree: int
+    unwanted_scale: Mapping[str, np.ndarray]
 
     def __init__(
         self,
@@ -123,36 +170,62 @@ class Evaluator:
         degree: int | None = None,
         elements: int = 4,
         mesh_tol_cents: float = 0.005,
+        unwanted_scale: Mapping[str, np.ndarray] | None = None,
     ) -> None:
-        self.space = space
-        self.goals = tuple(goals)
+        put = object.__setattr__
+        put(self, "space", space)
+        put(self, "goals", tuple(goals))
         # unwanted modes are kept clear of where the partials will sound: the targets
-        self.partials_hz = np.array([g.f_hz for g in self.goals])
-        self.clearance = clearance
-        self.theory = theory
-        self.elements = elements
-        self.mesh_tol_cents = mesh_tol_cents
-        self.counts = self._counts()
-        self.solves = 0
-        self._reference_shapes: dict[str, np.ndarray] | None = None
-        self._cache: dict[bytes, Evaluation] = {}
-        self.unwanted_scale: dict[str, np.ndarray] = {}
-        self.degree = degree or self._converged_degree(space.part(space.start()))
-        self._set_mesh()
+        put(self, "partials_hz", np.array([g.f_hz for g in self.goals]))
+        put(self, "clearance", clearance)
+        put(self, "theory", theory)
+        put(self, "elements", elements)
+        put(self, "mesh_tol_cents", mesh_tol_cents)
+        put(self, "counts", MappingProxyType(self._counts()))
+        scale = {k: np.asarray(v, dtype=float) for k, v in (unwanted_scale or {}).items()}
+        put(self, "unwanted_scale", MappingProxyType(scale))
+        put(self, "degree", degree or self._converged_degree(space.part(space.start())))
+        self._finish()
 
-    def set_goals(self, goals: Sequence[Goal]) -> None:
-        """Replace the goals (same families and orders), e.g. shifted by a model defect.
-        The clearance keeps referring to the sounding partials, ``partials_hz``."""
-        self.goals = tuple(goals)
-        self._cache.clear()
+    def __setattr__(self, name: str, value) -> None:
+        raise AttributeError(f"Evaluator is immutable: use with_goals/with_unwanted_scale ({name})")
 
-    def set_unwanted_scale(self, scale: dict[str, np.ndarray]) -> None:
-        """Multiply the beam frequencies of the clearance families' modes (by order) by these
+    def _finish(self) -> None:
+        put = object.__setattr__
+        put(self, "_token", next(_TOKENS))
+        fixed = None
+        if self.space.length_index is None:
+            fixed = self._discretise(self.space.part(self.space.start()), self.degree)
+        put(self, "_fixed_disc", fixed)
+
+    def _derived(self, **changes) -> Evaluator:
+        new = object.__new__(Evaluator)
+        for name, value in {**self.__dict__, **changes}.items():
+            object.__setattr__(new, name, value)
+        new._finish()
+        return new
+
+    def with_goals(self, goals: Sequence[Goal]) -> Evaluator:
+        """The same objective with other goals (same families and orders), e.g. shifted by a
+        model defect. The clearance keeps referring to the sounding partials, ``partials_hz``."""
+        return self._derived(goals=tuple(goals))
+
+    def with_unwanted_scale(self, scale: Mapping[str, np.ndarray]) -> Evaluator:
+        """The beam frequencies of the clearance families' modes (by order) multiplied by these
         ratios, e.g. 3D over beam at the current design: the clearance is then judged on
         frequencies a higher-fidelity model confirmed. Orders beyond a family's array keep its
-        last ratio; an empty dict restores the beam model."""
-        self.unwanted_scale = {k: np.asarray(v, dtype=float) for k, v in scale.items()}
-        self._cache.clear()
+        last ratio; an empty dict is the beam model."""
+        scale = {k: np.asarray(v, dtype=float) for k, v in scale.items()}
+        return self._derived(unwanted_scale=MappingProxyType(scale))
+
+    def refined(self, degree: int | None = None) -> Evaluator:
+        """A finer mesh: the polynomial degree raised by two (after a certified solve disagreed
+        with this mesh), or to ``degree`` when that is higher."""
+        return self._derived(degree=max(self.degree + 2 if degree is None else degree, self.degree))
+
+    def goals_hz(self) -> np.ndarray:
+        """The goals' target frequencies (Hz), which may be shifted from ``partials_hz``."""
+        return np.array([g.f_hz for g in self.goals])
 
     def _ratios(self, family: str, n: int) -> np.ndarray:
         r = self.unwanted_scale.get(family)
@@ -160,23 +233,11 @@ class Evaluator:
             return np.ones(n)
         return np.concatenate([r[:n], np.full(max(0, n - r.size), r[-1])])
 
-    def _set_mesh(self) -> None:
-        self._fixed_disc: Discretisation | None = None
-        if self.space.length_index is None:
-            self._fixed_disc = self._discretise(self.space.part(self.space.start()))
-        self._cache.clear()
-
-    def refine(self) -> None:
-        """Raise the polynomial degree (after a certified solve disagreed with this mesh)."""
-        self.degree += 2
-        self._set_mesh()
-
     def _converged_degree(self, part: Part) -> int:
         """Lowest degree whose nested (p - 1 vs p) error estimate is within mesh_tol_cents
         for every mode the goals and the clearance need, on the starting design."""
         for p in range(4, 13):
-            self.degree = p
-            disc = self._discretise(part)
+            disc = self._discretise(part, p)
             coef = section_coefficients(part, disc.quad.x)
             worst = 0.0
             for fam, count in self.counts.items():
@@ -184,7 +245,8 @@ class Evaluator:
                 hi = lowest_modes(system, count)[0]
                 lo = lowest_modes(system, count, subspace=np.flatnonzero(system.lower))[0]
                 n = min(hi.size, lo.size)
-                worst = max(worst, float(np.max(600 * np.log2(lo[:n] / hi[:n]))))
+                # eigenvalues: half their interval in cents is the frequencies'
+                worst = max(worst, float(np.max(0.5 * cents(lo[:n], hi[:n]))))
             if worst <= self.mesh_tol_cents:
                 return p
         return 12
@@ -202,12 +264,12 @@ class Evaluator:
                 counts.setdefault(fam, 3)
         return counts
 
-    def _discretise(self, part: Part) -> Discretisation:
-        return discretise(part, elements=self.elements, degree=self.degree, theory=self.theory)
+    def _discretise(self, part: Part, degree: int) -> Discretisation:
+        return discretise(part, elements=self.elements, degree=degree, theory=self.theory)
 
-    def _solve(self, u: np.ndarray, want_vectors: bool):
+    def _solve(self, u: np.ndarray, log: EvaluationLog):
         part = self.space.part(u)
-        disc = self._fixed_disc or self._discretise(part)
+        disc = self._fixed_disc or self._discretise(part, self.degree)
         coef = section_coefficients(part, disc.quad.x)
         top = max(g.f_hz for g in self.goals)
         out = {}
@@ -223,7 +285,7 @@ class Evaluator:
                     break
                 n += 3
             out[fam] = (lam, vec, system)
-        self.solves += 1
+        log.solves += 1
         return part, disc, out
 
     def _frequencies(self, modes) -> tuple[np.ndarray, list[list[tuple[str, int, float]]]]:
@@ -290,27 +352,30 @@ class Evaluator:
                 which.append((fam, k, j, float(gaps[k]) if v.size else 0.0, float(edge)))
         return found, np.array(hinge), which, bool(clear)
 
-    def evaluate(self, u: np.ndarray, jacobian: bool = False) -> Evaluation:
+    def evaluate(
+        self, u: np.ndarray, jacobian: bool = False, log: EvaluationLog | None = None
+    ) -> Evaluation:
+        """Residuals (and with ``jacobian`` their analytic Jacobian) at the scaled design ``u``;
+        the solves are counted, and partials tracked by shape, in ``log``."""
+        log = EvaluationLog() if log is None else log
         u = np.asarray(u, dtype=float)
-        key = u.tobytes()
-        cached = self._cache.get(key)
+        key = (self._token, u.tobytes())
+        cached = log.cache.get(key)
         if cached is not None and (cached.jacobian is not None or not jacobian):
             return cached
-        part, disc, modes = self._solve(u, jacobian)
+        part, disc, modes = self._solve(u, log)
         achieved, uses = self._frequencies(modes)
-        errors = np.array(
-            [CENTS_PER_LN * np.log(f / g.f_hz) for f, g in zip(achieved, self.goals, strict=True)]
-        )
+        errors = cents(achieved, self.goals_hz())
         scale = np.array([g.weight / g.tolerance_cents for g in self.goals])
         unwanted, hinge, which, clearance_ok = self._unwanted(modes, self.partials_hz)
         cw = self.clearance.weight if self.clearance else 0.0
         band = np.array([w[4] for w in which])
         residuals = np.concatenate([errors * scale, cw * 100.0 * hinge / np.maximum(band, 1e-9)])
         shapes = {fam: vec for fam, (lam, vec, system) in modes.items()}
-        mac_ok = self._track(shapes)
+        mac_ok = _track(log, shapes)
         J = None
         if jacobian:
-            J = self._jacobian(u, part, disc, modes, uses, achieved, which, scale, cw)
+            J = self._jacobian(u, part, disc, modes, uses, which, scale, cw, log)
         family_hz = {
             fam: np.sqrt(np.maximum(lam, 0.0)) / (2 * np.pi) for fam, (lam, _, _) in modes.items()
         }
@@ -327,27 +392,12 @@ class Evaluator:
             family_hz,
             clearance_ok,
         )
-        if len(self._cache) > 64:
-            self._cache.clear()
-        self._cache[key] = ev
+        if len(log.cache) > 64:
+            log.cache.clear()
+        log.cache[key] = ev
         return ev
 
-    def _track(self, shapes: dict[str, np.ndarray]) -> bool:
-        """True when every goal family's modes still match the first design's by shape."""
-        if self._reference_shapes is None:
-            self._reference_shapes = {f: v for f, v in shapes.items() if f != "strike"}
-            return True
-        for fam, ref in self._reference_shapes.items():
-            cur = shapes.get(fam)
-            if cur is None or cur.shape[0] != ref.shape[0]:
-                continue  # a new mesh (free length): order is the identification
-            k = min(ref.shape[1], cur.shape[1])
-            best = np.argmax(mac(ref[:, :k], cur[:, :k]), axis=1)
-            if np.any(best != np.arange(k)):
-                return False
-        return True
-
-    def _dlam(self, u, part, disc, modes) -> dict[str, np.ndarray]:
+    def _dlam(self, u, part, disc, modes, log: EvaluationLog) -> dict[str, np.ndarray]:
         """d lambda / d u for every solved mode of every family, (n_modes, n_vars)."""
         n = self.space.n
         dcoef = self.space.coefficient_jacobian(u, part, disc.quad.x)
@@ -366,15 +416,15 @@ class Evaluator:
             up, dn = u.copy(), u.copy()
             up[li] = min(u[li] + h, 1.0)
             dn[li] = max(u[li] - h, 0.0)
-            _, _, mp = self._solve(up, False)
-            _, _, mm = self._solve(dn, False)
+            _, _, mp = self._solve(up, log)
+            _, _, mm = self._solve(dn, log)
             for fam in out:
                 k = min(mp[fam][0].size, mm[fam][0].size, out[fam].shape[0])
                 out[fam][:k, li] = (mp[fam][0][:k] - mm[fam][0][:k]) / (up[li] - dn[li])
         return out
 
-    def _jacobian(self, u, part, disc, modes, uses, achieved, which, scale, cw):
-        dlam = self._dlam(u, part, disc, modes)
+    def _jacobian(self, u, part, disc, modes, uses, which, scale, cw, log: EvaluationLog):
+        dlam = self._dlam(u, part, disc, modes, log)
         n = self.space.n
         rows = []
         for use in uses:
@@ -395,3 +445,19 @@ class Evaluator:
             dgap = np.sign(ratio * f_b - self.partials_hz[j]) * df_m
             J_clear[r] = -dgap * cw * 100.0 / band
         return np.vstack([J_goals, J_clear])
+
+
+def _track(log: EvaluationLog, shapes: dict[str, np.ndarray]) -> bool:
+    """True when every goal family's modes still match the first design's by shape."""
+    if log.reference_shapes is None:
+        log.reference_shapes = {f: v for f, v in shapes.items() if f != "strike"}
+        return True
+    for fam, ref in log.reference_shapes.items():
+        cur = shapes.get(fam)
+        if cur is None or cur.shape[0] != ref.shape[0]:
+            continue  # a new mesh (free length): order is the identification
+        k = min(ref.shape[1], cur.shape[1])
+        best = np.argmax(mac(ref[:, :k], cur[:, :k]), axis=1)
+        if np.any(best != np.arange(k)):
+            return False
+    return True

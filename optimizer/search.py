@@ -8,25 +8,90 @@
    ``handover_cents``: the polish is far faster from there.
 2. Polish: ``scipy.optimize.least_squares`` (dogbox trust region, bounds [0, 1]) with the
    analytic Jacobian from eigenvalue sensitivities.
-3. Verdict: converged when every goal is within tolerance, unwanted modes are clear and the
-   cutter fits. Otherwise the closest design is returned with the limits that bind: variables
-   pressed against their bounds, the clearance band, or the cutter radius.
+3. Verdict: one integer ``status`` (the table ``STATUS_MESSAGES``, as scipy's
+   ``least_squares``), decided here and nowhere else: met when every goal is within
+   tolerance, unwanted modes are clear and the cutter fits. Otherwise the closest design is
+   returned with the limits that bind: variables pressed against their bounds, the clearance
+   band, or the cutter radius. A certifying model (``optimizer.correction``) and the certified
+   solve of the written part can only turn a met design into a miss (``certified_status``,
+   ``rechecked``); callers derive ``converged`` and exit codes from the status.
 Restarts (new seed and start, full step size, a stricter hand-over) are tried while the
 evaluation budget lasts.
+
+The ``Evaluator`` is the objective's fixed configuration; what a search changes is explicit:
+the solve counter and shape reference in an ``EvaluationLog``, the penalty weight of the
+cutter continuation an argument of each polish, a refined mesh a new evaluator.
 """
 
 from __future__ import annotations
 
-from collections.abc import Callable
-from dataclasses import dataclass
+from collections.abc import Callable, Sequence
+from dataclasses import dataclass, replace
 
 import cma
 import numpy as np
 from scipy.optimize import least_squares
+from tonewright.acoustics.pitch import cents
 from tonewright.forward import solve
-from tonewright.optimizer.objective import Evaluation, Evaluator
+from tonewright.optimizer.objective import Evaluation, EvaluationLog, Evaluator
 
-__all__ = ["DesignResult", "SearchSettings", "design", "polish", "verdict"]
+__all__ = [
+    "MET",
+    "MISSED_CERTIFIER",
+    "MISSED_CERTIFIER_UNWANTED",
+    "MISSED_CUTTER",
+    "MISSED_LIMIT",
+    "MISSED_SHAPE",
+    "MISSED_UNWANTED",
+    "MISSED_WRITTEN_PART",
+    "STATUS_MESSAGES",
+    "DesignResult",
+    "SearchSettings",
+    "Verdict",
+    "certified_status",
+    "design",
+    "exit_code",
+    "polish",
+    "rechecked",
+    "verdict",
+]
+
+# The one status table. 0 is the only success; every other code is a miss, by reason.
+MET = 0
+MISSED_LIMIT = 1
+MISSED_UNWANTED = 2
+MISSED_CUTTER = 3
+MISSED_SHAPE = 4
+MISSED_CERTIFIER = 5
+MISSED_CERTIFIER_UNWANTED = 6
+MISSED_WRITTEN_PART = 7
+STATUS_MESSAGES: dict[int, str] = {
+    MET: "every partial within tolerance",
+    MISSED_LIMIT: "out of reach within the limits (a limit binds)",
+    MISSED_UNWANTED: "an unwanted mode lies in a partial's keep-clear band",
+    MISSED_CUTTER: "the cut is too tight for the cutter radius",
+    MISSED_SHAPE: "out of reach within the limits (no single limit binds)",
+    MISSED_CERTIFIER: "the certifying model misses a goal after its corrections",
+    MISSED_CERTIFIER_UNWANTED: "an unwanted mode is too near a partial in the certifying model",
+    MISSED_WRITTEN_PART: "the certified solve of the written part misses the tolerance",
+}
+
+
+def exit_code(status: int) -> int:
+    """The command's exit code for a status: 0 met, 1 missed (2, bad input, never gets here)."""
+    return 0 if status == MET else 1
+
+
+@dataclass(frozen=True)
+class Verdict:
+    status: int
+    message: str  # the table's message, and what exactly missed
+    binding: tuple[str, ...]
+
+    @property
+    def met(self) -> bool:
+        return self.status == MET
+
 
 Progress = Callable[[str, int, float], None]
 
@@ -43,16 +108,22 @@ class SearchSettings:
 
 @dataclass(frozen=True, eq=False)
 class DesignResult:
-    """The closest design found, how it meets the goals, and why it stopped."""
+    """The closest design found, how it meets the goals, and why it stopped (``status``, one
+    of ``STATUS_MESSAGES``). ``evaluator``: the objective it was judged by (its mesh may be
+    finer than the one the search started with)."""
 
     u: np.ndarray
     evaluation: Evaluation
-    converged: bool
-    status: int  # 0 converged, 1 out of tolerance, 2 unwanted mode too near, 3 cutter too big
+    status: int
     message: str
     binding: tuple[str, ...]
     solves: int
     attempts: int
+    evaluator: Evaluator | None = None
+
+    @property
+    def converged(self) -> bool:
+        return self.status == MET
 
 
 def _penalised(ev: Evaluation, curvature_margin: float, cutter_radius: float) -> float:
@@ -70,12 +141,13 @@ def _global_search(
     budget: int,
     progress: Progress | None,
     handover: float,
+    log: EvaluationLog,
 ) -> np.ndarray:
     space = evaluator.space
     radius = getattr(space, "cutter_radius", 0.0)
 
     def fitness(u: np.ndarray) -> tuple[float, Evaluation, bool]:
-        ev = evaluator.evaluate(u)
+        ev = evaluator.evaluate(u, log=log)
         margin = space.curvature_margin(u)
         return _penalised(ev, margin, radius), ev, margin >= 0
 
@@ -110,7 +182,7 @@ def _global_search(
         ev = scored[k][1]
         worst = float(np.max(np.abs(ev.errors_cents)))
         if progress:
-            progress("search", evaluator.solves, worst)
+            progress("search", log.solves, worst)
         if worst < handover and ev.clearance_ok and scored[k][2]:
             best_u = np.asarray(X[k], dtype=float)
             break
@@ -139,15 +211,26 @@ def _cutter_jacobian(space, u: np.ndarray, weight: float) -> np.ndarray:
     return J
 
 
-def polish(evaluator: Evaluator, u0: np.ndarray, settings: SearchSettings, progress) -> np.ndarray:
+CUTTER_WEIGHTS = (1e2, 1e3, 1e4, 1e5)  # the penalty continuation of the cutter hinge
+
+
+def polish(
+    evaluator: Evaluator,
+    u0: np.ndarray,
+    settings: SearchSettings,
+    progress: Progress | None,
+    log: EvaluationLog | None = None,
+) -> np.ndarray:
     """Least squares on the goal and clearance residuals plus a cutter hinge, so that a start
     whose cut is too tight (e.g. a larger neighbour's design) is pulled back within the shop
     limit rather than abandoned. A hinge trades against the goals and may leave a sliver of
-    violation: its weight then grows tenfold (a penalty continuation), three times at most."""
+    violation: its weight then grows tenfold (a penalty continuation, ``CUTTER_WEIGHTS``),
+    three times at most; each weight is an argument of one polish, never stored."""
+    log = EvaluationLog() if log is None else log
     space = evaluator.space
     u = np.clip(np.asarray(u0, dtype=float), 0.0, 1.0)
-    for weight in (1e2, 1e3, 1e4, 1e5):
-        u = _polish_once(evaluator, u, settings, progress, weight)
+    for weight in CUTTER_WEIGHTS:
+        u = _polish_once(evaluator, u, settings, progress, weight, log)
         if space.curvature_margin(u) >= 0:
             return u
     if space.curvature_margin(u0) < 0:
@@ -159,16 +242,19 @@ def polish(evaluator: Evaluator, u0: np.ndarray, settings: SearchSettings, progr
     return u0 + t * (u - u0)
 
 
-def _polish_once(evaluator: Evaluator, u0: np.ndarray, settings, progress, weight: float):
+def _polish_once(
+    evaluator: Evaluator, u0: np.ndarray, settings, progress, weight: float, log: EvaluationLog
+):
     space = evaluator.space
 
     def fun(u: np.ndarray) -> np.ndarray:
-        return np.concatenate([evaluator.evaluate(u).residuals, _cutter_residual(space, u, weight)])
+        residuals = evaluator.evaluate(u, log=log).residuals
+        return np.concatenate([residuals, _cutter_residual(space, u, weight)])
 
     def jac(u: np.ndarray) -> np.ndarray:
-        ev = evaluator.evaluate(u, jacobian=True)
+        ev = evaluator.evaluate(u, jacobian=True, log=log)
         if progress:
-            progress("polish", evaluator.solves, float(np.max(np.abs(ev.errors_cents))))
+            progress("polish", log.solves, float(np.max(np.abs(ev.errors_cents))))
         return np.vstack([ev.jacobian, _cutter_jacobian(space, u, weight)])
 
     # dogbox sees a bound as active only when the variable sits exactly on it; a variable a
@@ -189,24 +275,22 @@ def _polish_once(evaluator: Evaluator, u0: np.ndarray, settings, progress, weigh
     return sol.x
 
 
-def verdict(evaluator: Evaluator, u: np.ndarray) -> tuple[bool, int, str, tuple[str, ...]]:
-    ev = evaluator.evaluate(u)
+def verdict(evaluator: Evaluator, u: np.ndarray, log: EvaluationLog | None = None) -> Verdict:
+    """The status of a design in the evaluator's (beam) model, what missed, what binds."""
+    ev = evaluator.evaluate(u, log=log)
     goals = evaluator.goals
     space = evaluator.space
     binding = space.binding(u)
     if space.curvature_margin(u) < 0:
-        return (
-            False,
-            3,
-            "the cut is too tight for the cutter radius",
-            tuple([*binding, "cutter radius"]),
+        return Verdict(
+            MISSED_CUTTER, STATUS_MESSAGES[MISSED_CUTTER], tuple([*binding, "cutter radius"])
         )
     if not ev.within_tolerance(goals):
         worst = int(np.argmax(np.abs(ev.errors_cents) / [g.tolerance_cents for g in goals]))
         g = goals[worst]
-        msg = (
-            f"out of reach within the limits: {g.label} is {ev.errors_cents[worst]:+.1f} cents "
-            f"from its target (tolerance {g.tolerance_cents:g})"
+        detail = (
+            f"{g.label} is {ev.errors_cents[worst]:+.1f} cents from its target "
+            f"(tolerance {g.tolerance_cents:g})"
         )
         # a torsion or lateral mode at the edge of a partial's band: the search traded the
         # partials against keeping it clear
@@ -218,13 +302,15 @@ def verdict(evaluator: Evaluator, u: np.ndarray) -> tuple[bool, int, str, tuple[
                 f"clearance of unwanted modes ({m.family} mode {m.order} at {m.f_hz:.0f} Hz "
                 f"crowds the {m.nearest_goal}; try another width or thickness)",
             ]
+        status = MISSED_LIMIT
         if not binding:
+            status = MISSED_SHAPE
             binding = [
                 "no single limit: the shape cannot reach these ratios within its cut "
                 "region; try more control points, shorter uncut ends, a free length or "
                 "another blank"
             ]
-        return False, 1, msg, tuple(binding)
+        return Verdict(status, f"{_headline(status)}: {detail}", tuple(binding))
     if not ev.clearance_ok:
         bad = [m for m in ev.unwanted if not m.clear]
         m = bad[0] if bad else ev.unwanted[0]
@@ -232,17 +318,65 @@ def verdict(evaluator: Evaluator, u: np.ndarray) -> tuple[bool, int, str, tuple[
             f"{m.family} mode {m.order} at {m.f_hz:.1f} Hz is {m.gap_hz:.1f} Hz from the "
             f"{m.nearest_goal} (keep {m.band_hz:.0f} Hz clear or within {m.coincidence_hz:g} Hz)"
         )
-        return False, 2, msg, tuple([*binding, "clearance of unwanted modes"])
-    return True, 0, "every partial within tolerance", tuple(binding)
+        return Verdict(MISSED_UNWANTED, msg, tuple([*binding, "clearance of unwanted modes"]))
+    return Verdict(MET, STATUS_MESSAGES[MET], tuple(binding))
 
 
-def _certified_gap(evaluator: Evaluator, u: np.ndarray) -> float:
+def _headline(status: int) -> str:
+    # both reach-misses read "out of reach within the limits"; the binding list says which
+    return STATUS_MESSAGES[status].split(" (")[0]
+
+
+def certified_status(
+    beam: Verdict,
+    certified_errors_cents: np.ndarray,
+    tolerance_cents: Sequence[float],
+    certified_clear: bool | None,
+    checks: int,
+    labels: Sequence[str],
+    unwanted_detail: str = "",
+) -> Verdict:
+    """The status of a corrected design: the beam model's verdict against the shifted goals,
+    judged again by the certifying model's errors against the real goals (and, when it sees
+    them, its unwanted modes)."""
+    tol = np.asarray(tolerance_cents, dtype=float)
+    errors = np.asarray(certified_errors_cents, dtype=float)
+    if not np.all(np.abs(errors) <= tol):
+        worst = int(np.argmax(np.abs(errors) / tol))
+        message = (
+            f"after {checks} high-fidelity checks {labels[worst]} is still "
+            f"{errors[worst]:+.2f} cents off (tolerance {tol[worst]:g})"
+        )
+        return Verdict(MISSED_CERTIFIER, message, beam.binding)
+    if certified_clear is False:
+        message = STATUS_MESSAGES[MISSED_CERTIFIER_UNWANTED] + unwanted_detail
+        return Verdict(MISSED_CERTIFIER_UNWANTED, message, beam.binding)
+    if beam.status in (MET, MISSED_LIMIT, MISSED_SHAPE):
+        # the beam misses its shifted goals by the defect's drift only: the model that
+        # certifies meets the real goals, so no limit binds
+        message = f"meets every goal in the certifying model ({checks - 1} correction(s))"
+        return Verdict(MET, message, beam.binding if beam.status == MET else ())
+    return beam  # the cutter or the beam's own clearance: the certifier cannot clear those
+
+
+def rechecked(
+    result: DesignResult, errors_cents: Sequence[float], tolerance_cents: Sequence[float]
+) -> DesignResult:
+    """The result once an independent solve of the part as written has been compared with the
+    goals: a met design whose written part misses becomes ``MISSED_WRITTEN_PART``."""
+    within = all(abs(e) <= t for e, t in zip(errors_cents, tolerance_cents, strict=True))
+    if result.status != MET or within:
+        return result
+    return replace(result, status=MISSED_WRITTEN_PART, message=STATUS_MESSAGES[MISSED_WRITTEN_PART])
+
+
+def _certified_gap(evaluator: Evaluator, u: np.ndarray, log: EvaluationLog) -> float:
     """Largest difference, as a fraction of the tolerance, between the search mesh and an
     independent solve converged to 0.01 cent."""
     part = evaluator.space.part(u)
     counts = {f: n for f, n in evaluator.counts.items()}
     modal = solve(part, counts, tol_cents=0.01, theory=evaluator.theory)
-    ev = evaluator.evaluate(u)
+    ev = evaluator.evaluate(u, log=log)
     worst = 0.0
     for g, f_loop in zip(evaluator.goals, ev.achieved_hz, strict=True):
         if g.family == "strike":
@@ -251,7 +385,7 @@ def _certified_gap(evaluator: Evaluator, u: np.ndarray) -> float:
             )
         else:
             f = modal.frequency(g.family, g.order)
-        worst = max(worst, abs(1200 * np.log2(f / f_loop)) / g.tolerance_cents)
+        worst = max(worst, abs(float(cents(f, f_loop))) / g.tolerance_cents)
     return worst
 
 
@@ -260,33 +394,36 @@ def design(
     settings: SearchSettings = SearchSettings(),
     progress: Progress | None = None,
     start: np.ndarray | None = None,
+    log: EvaluationLog | None = None,
 ) -> DesignResult:
     """Search the evaluator's design space for a design meeting its goals.
 
     ``start``: a design of a similar part (a neighbouring bar of an instrument, in the same
     scaled variables). It is polished first; only when that polish misses does the global
-    search run, from the space's usual start.
+    search run, from the space's usual start. ``log``: the solve counter to continue (the
+    budget counts its solves); a new one by default. The returned result carries the
+    evaluator it was judged by, refined when the search mesh proved too coarse.
     """
+    log = EvaluationLog() if log is None else log
     space = evaluator.space
+    radius = getattr(space, "cutter_radius", 0.0)
     rng = np.random.default_rng(settings.seed)
     x0 = space.start()
     best_u, best_score = x0, np.inf
     attempts = 0
     warm = None
     if start is not None:
-        u = polish(evaluator, np.asarray(start, dtype=float), settings, progress)  # clips
+        u = polish(evaluator, np.asarray(start, dtype=float), settings, progress, log)  # clips
         attempts = 1
-        if verdict(evaluator, u)[0]:
+        if verdict(evaluator, u, log).met:
             warm = u
         else:
-            ev = evaluator.evaluate(u)
+            ev = evaluator.evaluate(u, log=log)
             best_u = u
-            best_score = _penalised(
-                ev, space.curvature_margin(u), getattr(space, "cutter_radius", 0.0)
-            )
+            best_score = _penalised(ev, space.curvature_margin(u), radius)
     for attempt in range(0 if warm is not None else settings.restarts + 1):
         attempts = attempt + 1
-        remaining = settings.budget - evaluator.solves
+        remaining = settings.budget - log.solves
         if remaining <= 0:
             break
         # share the budget: a stalled run must leave room for the restarts
@@ -294,14 +431,13 @@ def design(
         # each restart searches longer before handing over: a polish that stalled (usually on
         # an unwanted mode's band) needs a start closer to a feasible basin
         handover = settings.handover_cents / 4.0**attempt
-        u = _global_search(
-            evaluator, x0, settings, settings.seed + 1000 * attempt, share, progress, handover
-        )
-        u = polish(evaluator, u, settings, progress)
-        ok, status, _, _ = verdict(evaluator, u)
-        ev = evaluator.evaluate(u)
-        score = _penalised(ev, space.curvature_margin(u), getattr(space, "cutter_radius", 0.0))
-        if ok:
+        seed = settings.seed + 1000 * attempt
+        u = _global_search(evaluator, x0, settings, seed, share, progress, handover, log)
+        u = polish(evaluator, u, settings, progress, log)
+        met = verdict(evaluator, u, log).met
+        ev = evaluator.evaluate(u, log=log)
+        score = _penalised(ev, space.curvature_margin(u), radius)
+        if met:
             best_u = u
             break
         if score < best_score:
@@ -312,18 +448,18 @@ def design(
     # certify on an accuracy-controlled mesh; if the search mesh was too coarse for the final
     # shape, refine it and polish again (at most twice)
     for _ in range(2):
-        if _certified_gap(evaluator, best_u) <= 0.1:
+        if _certified_gap(evaluator, best_u, log) <= 0.1:
             break
-        evaluator.refine()
-        best_u = polish(evaluator, best_u, settings, progress)
-    ok, status, message, binding = verdict(evaluator, best_u)
+        evaluator = evaluator.refined()
+        best_u = polish(evaluator, best_u, settings, progress, log)
+    judged = verdict(evaluator, best_u, log)
     return DesignResult(
         u=best_u,
-        evaluation=evaluator.evaluate(best_u),
-        converged=ok,
-        status=status,
-        message=message,
-        binding=binding,
-        solves=evaluator.solves,
+        evaluation=evaluator.evaluate(best_u, log=log),
+        status=judged.status,
+        message=judged.message,
+        binding=judged.binding,
+        solves=log.solves,
         attempts=attempts,
+        evaluator=evaluator,
     )

@@ -153,3 +153,98 @@ def test_wood_without_orthotropic_data_fails_before_the_search(tmp_path):
     result = runner.invoke(app, ["design", str(path), "--out", str(tmp_path / "o")])
     assert result.exit_code == 2
     assert "base =" in result.output and "--beam-only" in result.output
+
+
+# ---------------------------------------------------------------------------------------------
+# All or nothing: the design's files are rendered and staged before any is moved in
+
+
+@pytest.fixture(scope="module")
+def beam_report():
+    from tonewright.design import build_problem, design_report
+    from tonewright.partfile import load_part
+
+    part_file, base = load_part(EXAMPLES / "workshop-marimba-c4.toml")
+    return design_report(build_problem(part_file, base), fidelity="beam")
+
+
+def _listing(folder: Path) -> dict[str, bytes]:
+    return {p.name: p.read_bytes() for p in sorted(folder.iterdir())}
+
+
+def test_a_writer_that_fails_leaves_no_folder_and_no_temporary_files(
+    beam_report, tmp_path, monkeypatch
+):
+    import tonewright.design_files as files
+
+    def broken(report):
+        raise RuntimeError("figure back-end failed")
+
+    monkeypatch.setattr(
+        files, "WRITERS", (files.part_toml, files.result_json, broken, files.spectrum_files)
+    )
+    out = tmp_path / "new"
+    with pytest.raises(RuntimeError, match="back-end"):
+        files.write_design(beam_report, out)
+    assert not out.exists()
+    assert list(tmp_path.iterdir()) == []  # no staging folder left either
+
+
+def test_a_write_cut_off_midway_leaves_existing_files_as_they_were(
+    beam_report, tmp_path, monkeypatch
+):
+    import tonewright.design_files as files
+
+    out = tmp_path / "out"
+    files.write_design(beam_report, out)
+    before = _listing(out)
+    assert sorted(before) == sorted(files.OUTPUTS)
+    calls = []
+    real = files.atomic_write_bytes
+
+    def disk_full(path, data, **kwargs):
+        calls.append(path)
+        if len(calls) == 3:  # two files staged, the third fails
+            raise OSError("no space left on device")
+        real(path, data, **kwargs)
+
+    monkeypatch.setattr(files, "atomic_write_bytes", disk_full)
+    with pytest.raises(OSError, match="no space"):
+        files.write_design(beam_report, out, force=True)
+    assert len(calls) == 3
+    assert _listing(out) == before  # nothing replaced, nothing half-written
+    assert sorted(p.name for p in tmp_path.iterdir()) == ["out"]  # staging removed
+
+
+def test_existing_files_are_untouched_without_force(beam_report, tmp_path):
+    from tonewright.design_files import write_design
+    from tonewright.errors import InputError
+
+    out = tmp_path / "out"
+    out.mkdir()
+    (out / "result.json").write_text("a maker's own notes")
+    with pytest.raises(InputError, match="--force"):
+        write_design(beam_report, out)
+    assert _listing(out) == {"result.json": b"a maker's own notes"}
+
+
+def test_report_status_and_exit_code_come_from_the_optimizer_table(beam_report):
+    from tonewright.optimizer import MET, STATUS_MESSAGES, exit_code
+
+    assert beam_report.status == MET and beam_report.converged
+    assert exit_code(beam_report.status) == 0
+    assert all(exit_code(s) == 1 for s in STATUS_MESSAGES if s != MET)
+    # every miss has its own message in the one table
+    assert len(set(STATUS_MESSAGES.values())) == len(STATUS_MESSAGES)
+
+
+def test_report_crosses_a_process_boundary(beam_report):
+    # instrument workers hand reports back to the parent: plain picklable values
+    import pickle
+
+    again = pickle.loads(pickle.dumps(beam_report))
+    assert again.status == beam_report.status and again.partials == beam_report.partials
+    assert again.part == beam_report.part
+    from tonewright.design_files import design_files
+
+    assert design_files(again)["part.toml"] == design_files(beam_report)["part.toml"]

@@ -50,7 +50,7 @@ def test_correction_meets_a_model_with_a_smooth_defect():
     assert start.converged
 
     def high_fidelity(u, gs):
-        f = Evaluator(space, gs, degree=ev.degree).evaluate(u).achieved_hz
+        f = Evaluator(space, gs, degree=start.evaluator.degree).evaluate(u).achieved_hz
         defect = np.array([-40.0, -60.0, -30.0]) * (1.0 + 0.3 * u[0])
         return f * 2.0 ** (defect / 1200.0)
 
@@ -107,7 +107,7 @@ def test_scaled_unwanted_modes_keep_an_exact_jacobian():
     k = int(np.argmin(np.abs(f_t - goals[2].f_hz)))
     ratio = np.ones(f_t.size)
     ratio[k] = (goals[2].f_hz + 60.0) / f_t[k]  # 60 Hz above the partial: inside its band
-    ev.set_unwanted_scale({"torsion": ratio})
+    ev = ev.with_unwanted_scale({"torsion": ratio})
     ev_u = ev.evaluate(u, jacobian=True)
     assert np.any(ev_u.clearance_violation > 0)
     h = 1e-5
@@ -145,7 +145,7 @@ def _tuned_with_clearance():
 
 def test_correction_keeps_unwanted_modes_clear_in_the_high_fidelity_model():
     space, goals, ev, start = _tuned_with_clearance()
-    high_fidelity = _stand_in(space, ev.degree, 1.10)
+    high_fidelity = _stand_in(space, start.evaluator.degree, 1.10)
     out = corrected_design(ev, start, high_fidelity)
     assert out.converged, out.message
     last = out.steps[-1]
@@ -167,7 +167,28 @@ def test_a_mode_only_the_high_fidelity_model_puts_in_a_band_is_not_certified():
     # design must not be reported as meeting its target
     space, _, ev, start = _tuned_with_clearance()
     assert all(m.clear for m in start.evaluation.unwanted)
-    out = corrected_design(ev, start, _stand_in(space, ev.degree, 1.13), max_steps=2)
+    out = corrected_design(ev, start, _stand_in(space, start.evaluator.degree, 1.13), max_steps=2)
     assert not out.converged
     assert out.steps[0].clear is False
     assert "unwanted mode" in out.message or "clearance" in " ".join(out.result.binding)
+
+
+def test_a_certifier_still_off_after_its_checks_is_a_miss_with_its_own_status():
+    # a stand-in model 40 cents flat everywhere, and a single check allowed: the beam design
+    # meets its goals, the certifier does not, and the one status says so (no second verdict)
+    from tonewright.optimizer.search import MISSED_CERTIFIER, STATUS_MESSAGES
+
+    space, goals = _space_and_goals()
+    ev = Evaluator(space, goals)
+    start = design(ev, SearchSettings(seed=1))
+    assert start.converged
+
+    def flat(u, gs):
+        return Evaluator(space, gs, degree=start.evaluator.degree).evaluate(u).achieved_hz * (
+            2.0 ** (-40.0 / 1200.0)
+        )
+
+    out = corrected_design(ev, start, flat, max_steps=1)
+    assert out.result.status == MISSED_CERTIFIER and not out.converged
+    assert "still" in out.message and "cents off" in out.message
+    assert MISSED_CERTIFIER in STATUS_MESSAGES

@@ -87,3 +87,84 @@ def test_gcode_error_leaves_nothing(tmp_path):
 def test_option_validation(kwargs, field):
     with pytest.raises(InputError, match=field):
         ShopOptions(**kwargs)
+
+
+# ---------------------------------------------------------------------------------------------
+# `tonewright shop` on a design's result: a missed design is refused unless accepted
+
+
+def _result_json(tmp_path, converged: bool):
+    import json
+
+    part = {
+        "title": "Trial bar G5",
+        "material": "sugar-maple",
+        "bar": {
+            "length": 200.0,
+            "width": 35.0,
+            "thickness": 18.0,
+            "profile": [[0.0, 18.0], [40.0, 18.0], [100.0, 9.0], [160.0, 18.0], [200.0, 18.0]],
+        },
+    }
+    payload = {
+        "part": part,
+        "partials": [
+            {"family": "bending", "order": 1, "target_hz": 783.99, "achieved_hz": 801.2},
+        ],
+        "converged": converged,
+        "status": 0 if converged else 1,
+        "message": "every partial within tolerance"
+        if converged
+        else "out of reach within the limits: bending 1 is +37.6 cents from its target",
+    }
+    path = tmp_path / "result.json"
+    path.write_text(json.dumps(payload), encoding="utf-8")
+    return path
+
+
+def _shop(*args):
+    from typer.testing import CliRunner
+
+    from tonewright.cli import app
+
+    return CliRunner().invoke(app, ["shop", *map(str, args)])
+
+
+def test_shop_refuses_a_missed_design_and_says_how_to_override(tmp_path):
+    result = _shop(_result_json(tmp_path, converged=False), "--out", tmp_path / "shop")
+    assert result.exit_code == 1
+    assert "misses its target" in result.stderr and "+37.6 cents" in result.stderr
+    override = [line for line in result.stderr.splitlines() if "--accept-missed-design" in line]
+    assert len(override) == 1  # one line saying how to override
+    assert not (tmp_path / "shop").exists()  # nothing written
+
+
+def test_an_accepted_missed_design_is_marked_on_every_sheet(tmp_path):
+    result = _shop(
+        _result_json(tmp_path, converged=False),
+        "--out",
+        tmp_path / "shop",
+        "--accept-missed-design",
+    )
+    assert result.exit_code == 0, result.output
+    assert "misses its target" in result.stderr  # the miss is printed first
+    files = sorted((tmp_path / "shop").iterdir())
+    kinds = {p.suffix for p in files}
+    assert {".pdf", ".svg", ".dxf", ".csv", ".nc"} <= kinds
+    for p in files:
+        assert "missed_design" in p.name  # the file names say so too
+        if p.suffix in (".svg", ".dxf", ".csv", ".nc"):
+            assert "MISSED DESIGN" in p.read_text(encoding="utf-8"), p.name
+        else:  # PDF: the title in the document's metadata
+            assert b"MISSED DESIGN" in p.read_bytes(), p.name
+    gcode = next(p for p in files if p.suffix == ".nc").read_text(encoding="ascii")
+    header = gcode.split("G21")[0]  # before the first motion preamble
+    assert "MISSED DESIGN" in header
+
+
+def test_a_design_that_met_is_drawn_unmarked(tmp_path):
+    result = _shop(_result_json(tmp_path, converged=True), "--out", tmp_path / "shop")
+    assert result.exit_code == 0, result.output
+    for p in (tmp_path / "shop").iterdir():
+        if p.suffix in (".svg", ".dxf", ".csv", ".nc"):
+            assert "MISSED DESIGN" not in p.read_text(encoding="utf-8"), p.name

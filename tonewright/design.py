@@ -23,16 +23,22 @@ The ``[design]`` table (all optional; lengths in mm unless a unit is written):
     budget = 2000             # forward solves at most
     fidelity = "plane"        # bars: beam | plane (default) | solid: the model that certifies
     thickness_axis = "T"      # wood for the 2D/3D models: T quarter-sawn, R flat-sawn
+
+The workflow: ``build_problem`` validates, ``design_report`` runs the search, the corrections
+and the certified solve of the part as written, and returns an immutable ``DesignReport``;
+``tonewright.design_files`` writes it. The status comes from the optimizer (one table,
+``tonewright.optimizer.STATUS_MESSAGES``); nothing here decides it again.
 """
 
 from __future__ import annotations
 
+from collections.abc import Callable, Mapping
 from dataclasses import dataclass
 from typing import Any
 
 import numpy as np
 
-from tonewright.acoustics.pitch import critical_bandwidth_hz
+from tonewright.acoustics.pitch import STRIKE_MODES, cents, critical_bandwidth_hz
 from tonewright.errors import InputError
 from tonewright.fidelity import Stage, check_bar, high_fidelity_function, stages_for
 from tonewright.forward import Bar, String, Tube, solve
@@ -42,32 +48,65 @@ from tonewright.optimizer import (
     Clearance,
     CorrectedDesign,
     DesignResult,
+    EvaluationLog,
     Evaluator,
     Goal,
     SearchSettings,
     StringDensity,
     TubeDesign,
+    UnwantedMode,
     corrected_design,
     design,
 )
-from tonewright.partfile import DesignTable, PartFile
+from tonewright.optimizer.search import rechecked
+from tonewright.partfile import DesignTable, PartFile, parse_part
 from tonewright.tuning import ResolvedTarget, resolve
 
 __all__ = [
     "STRIKE_COMPONENTS",
+    "UNWANTED_3D",
+    "UNWANTED_CAVEAT",
+    "CertifiedPartial",
+    "DesignFigures",
+    "DesignReport",
     "DesignTable",
+    "HalfCriticalBand",
     "Outcome",
     "Problem",
     "achieved",
     "build_problem",
     "certify",
+    "design_report",
     "part_table",
     "run_design",
     "station_profile",
 ]
 
-# strike note = geometric mean of f4/2, f5/3, f6/4 (tonewright.acoustics.pitch.strike_note_hz)
-STRIKE_COMPONENTS = ((4, 2.0, 1.0 / 3.0), (5, 3.0, 1.0 / 3.0), (6, 4.0, 1.0 / 3.0))
+# the strike-note rule of tonewright.acoustics.pitch as goal components: (bending order,
+# divisor, exponent), a geometric mean of f_k / h_k over STRIKE_MODES
+STRIKE_COMPONENTS = tuple((k, h, 1.0 / len(STRIKE_MODES)) for k, h in STRIKE_MODES)
+
+# measured with 'verify' on demo-sized bars 50 and 60 mm wide: the beam's first two torsion
+# modes 162-304 cents below the 3D model's, its lateral modes 79-145 cents above (README)
+UNWANTED_CAVEAT = (
+    "beam model; on an undercut bar its torsion and lateral modes can be 80-300 cents off, "
+    "so check them in 3D with 'tonewright verify' before cutting"
+)
+UNWANTED_3D = "3D model: the beam's modes scaled to the 3D solve of this very design"
+
+Progress = Callable[[str, int, float], None]
+
+
+@dataclass(frozen=True)
+class HalfCriticalBand:
+    """Keep-clear half-width around a partial: half of a band ``bands`` critical bandwidths
+    wide (Zwicker & Terhardt, 1980), centred on the partial. A class, not a closure, so that
+    a problem can cross to a worker process."""
+
+    bands: float = 1.0
+
+    def __call__(self, f_hz: np.ndarray) -> np.ndarray:
+        return 0.5 * self.bands * critical_bandwidth_hz(f_hz)
 
 
 @dataclass(frozen=True, eq=False)
@@ -166,21 +205,24 @@ def build_problem(part_file: PartFile, base_dir=None, seed: int | None = None) -
 
 @dataclass(frozen=True, eq=False)
 class Outcome:
-    """A design and, when corrected, each higher-fidelity stage it went through."""
+    """A design and, when corrected, each higher-fidelity stage it went through. ``result``
+    is the last stage's; its status is the outcome's (never decided again here)."""
 
     result: DesignResult
     fidelity: str
     stages: tuple[tuple[Stage, CorrectedDesign], ...]
 
     @property
+    def status(self) -> int:
+        return self.result.status
+
+    @property
     def converged(self) -> bool:
-        if not self.stages:
-            return self.result.converged
-        return self.stages[-1][1].converged
+        return self.result.converged
 
     @property
     def message(self) -> str:
-        return self.stages[-1][1].message if self.stages else self.result.message
+        return self.result.message
 
 
 def fidelity_of(problem: Problem, override: str | None = None) -> str:
@@ -210,7 +252,8 @@ def run_design(
             material = spec.to_solid(problem.table.thickness_axis)
         except InputError as exc:
             raise InputError(f"{exc}; or design with --beam-only") from None
-    result = design(problem.evaluator, settings, progress, start)
+    log = EvaluationLog()  # one solve count (and shape reference) for every stage
+    result = design(problem.evaluator, settings, progress, start, log)
     stages: list[tuple[Stage, CorrectedDesign]] = []
     if fidelity == "beam" or not result.converged:
         return Outcome(result, fidelity, ())
@@ -218,7 +261,9 @@ def run_design(
     current = result
     for stage in stages_for(fidelity):
         hf = high_fidelity_function(stage, problem.space, bar.thickness, bar.width, material)
-        corrected = corrected_design(problem.evaluator, current, hf, settings, progress=progress)
+        corrected = corrected_design(
+            problem.evaluator, current, hf, settings, progress=progress, log=log
+        )
         stages.append((stage, corrected))
         current = corrected.result
         if not corrected.converged and stage.model == "plane" and fidelity == "solid":
@@ -276,7 +321,7 @@ def achieved(problem: Problem, modal) -> list[dict[str, Any]]:
                 "order": g.order,
                 "target_hz": g.f_hz,
                 "achieved_hz": f,
-                "error_cents": 1200.0 * np.log2(f / g.f_hz),
+                "error_cents": float(cents(f, g.f_hz)),
                 "tolerance_cents": g.tolerance_cents,
             }
         )
@@ -347,3 +392,193 @@ def part_table(problem: Problem, u: np.ndarray) -> dict[str, Any]:
         out["model"] = pf.model.model_dump()
     out["target"] = pf.target_value()
     return out
+
+
+# ---------------------------------------------------------------------------------------------
+# The report of one design
+
+
+@dataclass(frozen=True)
+class CertifiedPartial:
+    """One goal as certified: its target, what the certifying model found, and by whom."""
+
+    family: str
+    order: int
+    target_hz: float
+    achieved_hz: float  # in the certifying model
+    beam_hz: float  # certified beam solve of the part as written
+    error_cents: float
+    tolerance_cents: float
+    certified_by: str
+
+    @property
+    def label(self) -> str:
+        return "strike note" if self.family == "strike" else f"{self.family} {self.order}"
+
+
+@dataclass(frozen=True)
+class DesignFigures:
+    """What the figures of a design show (mm, Hz), so that they are drawn without a solve."""
+
+    modes: tuple[tuple[str, int, float], ...]  # (family, order, Hz) up to 1.35 x the top goal
+    targets: tuple[tuple[str, float, float], ...]  # (label, Hz, tolerance in cents)
+    x_mm: tuple[float, ...]
+    thickness_mm: tuple[float, ...] | None  # bars: the side profile
+    blank_mm: float | None
+    holes: tuple[tuple[float, float, float], ...]  # (x, diameter, height) mm
+    shape: tuple[float, ...] | None  # tubes and strings: the first mode shape
+    nodes_mm: tuple[float, ...]
+
+
+@dataclass(frozen=True, eq=False)
+class DesignReport:
+    """A design as the workflow returns it: plain immutable values (picklable, so a worker
+    process can hand it back), ready for the writers in ``tonewright.design_files``.
+
+    ``status`` is the optimizer's (``STATUS_MESSAGES``), after the certified solve of the
+    written part; ``partials`` that certified solve; ``part`` the written-part table;
+    ``certified_by`` the model that certified it."""
+
+    title: str
+    status: int
+    message: str
+    binding: tuple[str, ...]
+    fidelity: str
+    partials: tuple[CertifiedPartial, ...]
+    part: Mapping[str, Any]
+    certified_by: str
+    variables: tuple[tuple[str, float], ...]
+    summary: Mapping[str, float]
+    seed: int
+    solves: int
+    modes_tracked_by_shape: bool
+    unwanted: tuple[UnwantedMode, ...]
+    unwanted_model: str
+    corrections: tuple[tuple[str, tuple[Any, ...]], ...]  # (model label, CorrectionSteps)
+    figures: DesignFigures
+
+    @property
+    def converged(self) -> bool:
+        return self.status == 0
+
+    @property
+    def nodes_mm(self) -> tuple[float, ...]:
+        return self.figures.nodes_mm
+
+    def start_variables(self) -> Mapping[str, float] | None:
+        """The design variables for a similar part to start from, when this design met."""
+        return dict(self.variables) if self.converged else None
+
+
+def _unwanted_model(outcome: Outcome) -> str:
+    """Which model judged the clearance of the unwanted modes in this outcome."""
+    if outcome.stages and outcome.stages[-1][0].model == "solid":
+        if outcome.stages[-1][1].steps[-1].clear is not None:
+            return UNWANTED_3D
+    return UNWANTED_CAVEAT
+
+
+def _figures(problem: Problem, part: Part, modal, rows: list[dict[str, Any]]) -> DesignFigures:
+    first = "bending" if modal.family("bending") else "transverse"
+    nodes = tuple(x * 1e3 for x in modal.family(first)[0].nodes_m)
+    top = 1.35 * max(r["achieved_hz"] for r in rows)
+    modes = tuple((m.family, m.order, m.frequency_hz) for m in modal.modes if m.frequency_hz <= top)
+    targets = tuple(
+        (
+            f"{r['family']} {r['order']}" if r["family"] != "strike" else "strike",
+            r["target_hz"],
+            r["tolerance_cents"],
+        )
+        for r in rows
+    )
+    x = np.linspace(0.0, part.length, 801)
+    if isinstance(part, Bar):
+        holes = tuple(
+            (
+                hh.x * 1e3,
+                hh.diameter * 1e3,
+                (hh.height or 0.5 * float(part.thickness(np.array([hh.x]))[0])) * 1e3,
+            )
+            for hh in part.holes
+        )
+        thickness = tuple(float(v) for v in part.thickness(x) * 1e3)
+        blank = problem.part_file.bar.thickness * 1e3
+        shape = None
+    else:
+        holes, thickness, blank = (), None, None
+        shape = tuple(float(v) for v in modal.modes[0].shape(x))
+    return DesignFigures(
+        modes, targets, tuple(float(v) for v in x * 1e3), thickness, blank, holes, shape, nodes
+    )
+
+
+def design_report(
+    problem: Problem,
+    progress: Progress | None = None,
+    fidelity: str | None = None,
+    start: Mapping[str, float] | None = None,
+) -> DesignReport:
+    """Design, correct, write the part table, certify it, and report.
+
+    ``start``: the design variables of a similar part (a neighbouring bar's
+    ``DesignReport.start_variables()``) to polish first; ignored unless the variables are the
+    same as this problem's."""
+    fidelity = fidelity_of(problem, fidelity)
+    names = list(problem.space.names())
+    u0 = None
+    if start is not None and list(start) == names:
+        u0 = np.array([float(start[k]) for k in names])
+    outcome = run_design(problem, progress, fidelity, u0)
+    result = outcome.result
+    table = part_table(problem, result.u)
+    written = parse_part(table, where="designed part")  # the table must be a valid part file
+    part = written.to_part(problem.base_dir)
+    modal = certify(problem, part)
+    rows = achieved(problem, modal)
+    certifier = f"beam model ({problem.part_file.model.theory})"
+    for r in rows:
+        r["beam_hz"] = r["achieved_hz"]
+        r["certified_by"] = certifier
+    if outcome.stages:
+        stage, corrected = outcome.stages[-1]
+        for r, f in zip(rows, corrected.steps[-1].high_fidelity_hz, strict=True):
+            r["achieved_hz"] = float(f)
+            r["error_cents"] = float(cents(f, r["target_hz"]))
+            r["certified_by"] = stage.label
+    result = rechecked(
+        result, [r["error_cents"] for r in rows], [r["tolerance_cents"] for r in rows]
+    )
+    partials = tuple(
+        CertifiedPartial(
+            r["family"],
+            int(r["order"]),
+            float(r["target_hz"]),
+            float(r["achieved_hz"]),
+            float(r["beam_hz"]),
+            float(r["error_cents"]),
+            float(r["tolerance_cents"]),
+            r["certified_by"],
+        )
+        for r in rows
+    )
+    by = outcome.stages[-1][0].label if outcome.stages else certifier
+    pf = problem.part_file
+    return DesignReport(
+        title=pf.title or "",
+        status=result.status,
+        message=result.message,
+        binding=tuple(result.binding),
+        fidelity=fidelity,
+        partials=partials,
+        part=table,
+        certified_by=f"{by}; beam model converged to {modal.max_error_cents:.2g} cent",
+        variables=tuple(zip(names, map(float, result.u), strict=True)),
+        summary=dict(problem.space.describe(result.u)),
+        seed=problem.table.seed,
+        solves=result.solves,
+        modes_tracked_by_shape=bool(result.evaluation.mac_ok),
+        unwanted=tuple(result.evaluation.unwanted),
+        unwanted_model=_unwanted_model(outcome),
+        corrections=tuple((stage.label, corrected.steps) for stage, corrected in outcome.stages),
+        figures=_figures(problem, part, modal, rows),
+    )

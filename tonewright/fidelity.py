@@ -14,16 +14,28 @@ from __future__ import annotations
 
 from collections.abc import Sequence
 from dataclasses import dataclass
+from pathlib import Path
 
 import numpy as np
 
+from tonewright.acoustics.pitch import cents, critical_bandwidth_hz
 from tonewright.errors import InputError
-from tonewright.forward import Bar
+from tonewright.forward import Bar, solve
 from tonewright.forward.plane import PlaneMesh, plane_modes
 from tonewright.forward.solid import SolidMesh, solid_modes
 from tonewright.optimizer import Goal, HighFidelityModes
+from tonewright.partfile import PartFile
+from tonewright.tuning import resolve
 
-__all__ = ["FIDELITIES", "Stage", "high_fidelity_function", "stages_for", "top_face_nodes"]
+__all__ = [
+    "FIDELITIES",
+    "MESHES",
+    "Stage",
+    "high_fidelity_function",
+    "stages_for",
+    "top_face_nodes",
+    "verify_part",
+]
 
 FIDELITIES = ("beam", "plane", "solid")
 COARSE_SOLID = SolidMesh(nx=48, ny=3, nz=6)
@@ -103,3 +115,91 @@ def top_face_nodes(coords: np.ndarray, shape: np.ndarray) -> list[float]:
     sign = np.sign(w)
     idx = np.flatnonzero(sign[:-1] * sign[1:] < 0)
     return [float(x[i] - w[i] * (x[i + 1] - x[i]) / (w[i + 1] - w[i])) for i in idx]
+
+
+MESHES = {"coarse": COARSE_SOLID, "standard": SolidMesh(), "fine": SolidMesh().refined(1.5)}
+
+
+def verify_part(part_file: PartFile, base: Path | None, table, mesh: str = "standard") -> dict:
+    """3D modes of a bar (a validated part file, its validated design table) against the beam
+    model and the target; a JSON-ready dict: ``modes``, ``targets``, ``warnings``, ``mesh``,
+    ``model``."""
+    if mesh not in MESHES:
+        raise InputError(f"--mesh {mesh!r}: choose coarse, standard or fine")
+    part = part_file.to_part(base)
+    if not isinstance(part, Bar):
+        raise InputError("verify: the 3D model is for bars; tubes and strings use 'modes'")
+    check_bar(part)
+    spec = part_file.material_spec(base)
+    material = spec.to_solid(table.thickness_axis)
+    beam = solve(part, {"bending": 6, "lateral": 3, "torsion": 4, "axial": 1}, tol_cents=0.01)
+    targets = []
+    if part_file.target is not None:
+        resolved = resolve(part_file.target, spec.temp_coeff_cents_per_K)
+        targets = [p for p in resolved.partials if p.family != "strike"]
+    top = 1.2 * (max(p.f_hz for p in targets) if targets else beam.frequency("bending", 4))
+    bar = part_file.bar
+    try:
+        res = solid_modes(
+            part.length,
+            bar.width,
+            bar.thickness,
+            part.thickness,
+            material,
+            fmax_hz=top,
+            mesh=MESHES[mesh],
+        )
+    except ValueError as exc:
+        raise InputError(f"verify: {exc}") from None
+    beam_hz = {(m.family, m.order): m.frequency_hz for m in beam.modes}
+    modes = []
+    for k, m in enumerate(res.modes):
+        b = beam_hz.get((m.family, m.order))
+        nodes = top_face_nodes(res.coords, res.shapes[k]) if m.family == "bending" else []
+        modes.append(
+            {
+                "family": m.family,
+                "order": m.order,
+                "frequency_hz": round(float(m.f_hz), 4),
+                "nodes_mm": [round(x * 1e3, 2) for x in nodes],
+                "beam_hz": None if b is None else round(b, 4),
+                "beam_minus_3d_cents": None if b is None else round(float(cents(b, m.f_hz)), 2),
+                "share": round(float(m.share), 3),
+            }
+        )
+    rows, warnings = [], []
+    solid_hz = {(m["family"], m["order"]): m["frequency_hz"] for m in modes}
+    for p in targets:
+        f = solid_hz.get((p.family, p.order))
+        err = None if f is None else float(cents(f, p.f_hz))
+        rows.append(
+            {
+                "family": p.family,
+                "order": p.order,
+                "target_hz": p.f_hz,
+                "solid_hz": f,
+                "error_cents": None if err is None else round(err, 3),
+                "tolerance_cents": p.tolerance_cents,
+                "within": bool(err is not None and abs(err) <= p.tolerance_cents),
+            }
+        )
+        band = 0.5 * table.clearance_bands * float(critical_bandwidth_hz(p.f_hz))
+        for m in modes:
+            if (m["family"], m["order"]) == (p.family, p.order) or m["family"] == p.family:
+                continue
+            gap = abs(m["frequency_hz"] - p.f_hz)
+            if table.coincidence_hz < gap < band:
+                warnings.append(
+                    f"{m['family']} {m['order']} at {m['frequency_hz']:.1f} Hz is {gap:.1f} Hz "
+                    f"from the {p.family} {p.order} target ({p.f_hz:.1f} Hz); "
+                    f"keep {band:.0f} Hz clear"
+                )
+    if part.holes:
+        warnings.append("the 3D model leaves out the suspension holes")
+    return {
+        "modes": modes,
+        "targets": rows,
+        "warnings": warnings,
+        "mesh": {"name": mesh, "dofs": int(res.n_dof), "status": res.message},
+        "model": "3D orthotropic solid, 27-node hexahedra; beam: Timoshenko",
+    }

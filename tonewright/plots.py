@@ -16,7 +16,7 @@ matplotlib.use("Agg")
 import matplotlib.pyplot as plt
 import numpy as np
 
-__all__ = ["FAMILY_STYLE", "figure_bytes", "profile_figure", "spectrum_figure"]
+__all__ = ["FAMILY_STYLE", "figure_bytes", "profile_figure", "shape_figure", "spectrum_figure"]
 
 # this tool's own palette: partial families by hue, targets in black
 FAMILY_STYLE = {
@@ -116,5 +116,18 @@ def spectrum_figure(
     ax.set_title(title or "Partials against targets")
     ax.legend(loc="upper left", fontsize=8, frameon=False, ncol=5)
     ax.grid(alpha=0.25, which="both", axis="x")
+    fig.tight_layout()
+    return fig
+
+
+def shape_figure(x_mm: np.ndarray, shape: np.ndarray, nodes_mm: Sequence[float]):
+    """The first mode shape of a tube or string along its length, with its nodes."""
+    fig, ax = plt.subplots(figsize=(9, 3.2))
+    ax.plot(x_mm, shape, color="#1b6f8a")
+    for xn in nodes_mm:
+        ax.axvline(xn, color="#1b6f8a", linestyle="--", linewidth=0.8)
+    ax.axhline(0, color="black", linewidth=0.5)
+    ax.set_xlabel("position (mm)")
+    ax.set_ylabel("first mode shape")
     fig.tight_layout()
     return fig

@@ -3,91 +3,34 @@ part file or a design's result.json (tubes: a cut sheet; strings: a winding sche
 
 from __future__ import annotations
 
-import json
 from pathlib import Path
 from typing import Annotated, Literal
 
-import numpy as np
 import typer
 
 from tonewright.cli_support import atomic_write_text, guarded, prepare_out_dir
 from tonewright.errors import InputError
-from tonewright.forward import Bar, String, Tube, families_of, solve
-from tonewright.partfile import PartFile, load_part
+from tonewright.forward import Tube
 from tonewright.shop import (
     Cutter,
     GcodeOptions,
     ShopOptions,
-    ShopPart,
-    TubeCut,
-    WoundString,
     tube_cut_list_csv,
     tube_cut_sheet,
     winding_schedule_csv,
     write_all,
 )
+from tonewright.shop_run import (
+    MISSED_MARK,
+    load_shop_source,
+    marked_missed,
+    tube_cut_of,
+    wound_string_of,
+)
 
-__all__ = ["register", "shop_part_from"]
+__all__ = ["ACCEPT_MISSED", "register"]
 
-
-def _partials(file: Path, modal) -> tuple[tuple[str, float | None, float], ...]:
-    """Target and predicted partials: from a result.json when given, else the model's."""
-    if file.suffix.lower() == ".json":
-        rows = json.loads(file.read_text(encoding="utf-8")).get("partials", [])
-        return tuple(
-            (f"{r['family']} {r['order']}", r.get("target_hz"), r["achieved_hz"]) for r in rows
-        )
-    bending = [m for m in modal.modes if m.family in ("bending", "transverse")][:3]
-    return tuple((f"{m.family} {m.order}", None, m.frequency_hz) for m in bending)
-
-
-def shop_part_from(file: Path) -> tuple[PartFile, object, ShopPart | None, object]:
-    """Load a part or result file; for bars build the ShopPart the drawings need."""
-    part_file, base = load_part(file)
-    part = part_file.to_part(base)
-    counts = dict.fromkeys(families_of(part), 0)
-    counts["transverse" if isinstance(part, String) else "bending"] = 3
-    modal = solve(part, counts, tol_cents=0.01, theory=part_file.model.theory)
-    if not isinstance(part, Bar):
-        return part_file, part, None, modal
-    bar = part_file.bar
-    if bar.width_profile:
-        raise InputError("bar.width_profile: shop outputs draw bars of constant width only")
-    x = np.linspace(0.0, bar.length, 2)
-    if bar.profile:
-        x = np.array([p[0] for p in bar.profile])
-        if x[0] > 0:
-            x = np.concatenate([[0.0], x])
-        if x[-1] < bar.length:
-            x = np.concatenate([x, [bar.length]])
-    h = part.thickness(x)
-    nodes = modal.family("bending")[0].nodes_m
-    spec = part_file.material_spec(base)
-    holes = tuple(
-        (
-            hole.x,
-            hole.diameter,
-            hole.height
-            if hole.height is not None
-            else 0.5 * float(part.thickness(np.array([hole.x]))[0]),
-        )
-        for hole in part.holes
-    )
-    shop = ShopPart(
-        title=part_file.title or file.stem,
-        length_m=bar.length,
-        width_m=bar.width,
-        blank_thickness_m=bar.thickness,
-        stations_x_m=tuple(float(v) for v in x),
-        stations_thickness_m=tuple(float(v) for v in h),
-        holes=holes,
-        node_positions_m=tuple(nodes),
-        node_tolerance_m=0.5e-3,
-        material_name=spec.name if spec else "",
-        partials=_partials(file, modal),
-        notes=(f"Model: {part_file.model.theory} beam, {modal.message}.",),
-    )
-    return part_file, part, shop, modal
+ACCEPT_MISSED = "--accept-missed-design"
 
 
 def register(app: typer.Typer) -> None:
@@ -114,11 +57,33 @@ def register(app: typer.Typer) -> None:
         force: Annotated[
             bool, typer.Option("--force", help="Replace files already in --out.")
         ] = False,
+        accept_missed: Annotated[
+            bool,
+            typer.Option(
+                ACCEPT_MISSED,
+                help="Draw a design that misses its target anyway (every sheet says so).",
+            ),
+        ] = False,
     ) -> None:
         """Write what a maker takes to the bench: 1:1 template, drawing, DXF, cuts, G-code."""
         if not 0.5 <= spacing <= 100:
             raise InputError(f"--spacing {spacing}: give 0.5 to 100 mm")
-        part_file, part, shop, modal = shop_part_from(file)
+        source = load_shop_source(file)
+        part_file, part, shop = source.part_file, source.part, source.shop
+        missed = source.design is not None and not source.design.converged
+        mark = ""
+        if missed:
+            typer.echo(f"this design misses its target: {source.design.message}", err=True)
+            if not accept_missed:
+                typer.echo(
+                    f"refusing to write shop files for a missed design; pass {ACCEPT_MISSED} "
+                    "to write them anyway, marked as a missed design",
+                    err=True,
+                )
+                raise typer.Exit(code=1)
+            mark = f" - {MISSED_MARK}"
+            if shop is not None:
+                shop = marked_missed(shop, source.design.message)
         if shop is not None:
             gcode = None
             if not no_gcode:
@@ -135,38 +100,14 @@ def register(app: typer.Typer) -> None:
             )
             written = write_all(shop, out, options, force=force)
         elif isinstance(part, Tube):
-            nodes = modal.family("bending")[0].nodes_m
-            cut = TubeCut(
-                name=part_file.title or file.stem,
-                length_m=part.length,
-                outer_diameter_m=part_file.tube.outer_diameter,
-                wall_m=part_file.tube.wall,
-                node_from_top_m=nodes[0],
-                node_tolerance_m=0.5e-3,
-                material_name=(part_file.material_spec(None).name if part_file.material else ""),
-                predicted_hz=modal.frequency("bending", 1),
-            )
+            cut = tube_cut_of(source, (part_file.title or file.stem) + mark)
             names = ["tube_cut_sheet.txt", "tube_cut_list.csv"]
             out = prepare_out_dir(out, names, force=force)
             atomic_write_text(out / names[0], tube_cut_sheet([cut]), overwrite=True)
             atomic_write_text(out / names[1], tube_cut_list_csv([cut]), overwrite=True)
             written = [out / n for n in names]
         else:
-            s = part_file.string
-            if not s.density_profile:
-                raise InputError("string: a winding schedule needs density_profile stations")
-            x, mu = np.array(s.density_profile).T
-            core_mu = float(mu.min())
-            wound = WoundString(
-                title=part_file.title or file.stem,
-                length_m=s.length,
-                stations_x_m=tuple(x),
-                linear_density_kg_m=tuple(mu),
-                core_diameter_m=np.sqrt(4 * core_mu / (np.pi * 7850.0)),
-                core_density_kg_m3=7850.0,
-                wrap_diameter_m=0.3e-3,
-                wrap_density_kg_m3=8960.0,
-            )
+            wound = wound_string_of(part_file, (part_file.title or file.stem) + mark)
             out = prepare_out_dir(out, ["winding_schedule.csv"], force=force)
             atomic_write_text(
                 out / "winding_schedule.csv", winding_schedule_csv(wound), overwrite=True
