@@ -21,6 +21,7 @@ from tonewright.errors import InputError
 __all__ = [
     "atomic_write_bytes",
     "atomic_write_text",
+    "check_folder_possible",
     "fail",
     "guarded",
     "parse_partials",
@@ -109,13 +110,19 @@ def _check_replaceable(path: Path, overwrite: bool) -> None:
         raise InputError(f"{path} exists already; pass --force to replace it")
 
 
-def _make_folder(folder: Path, prefix: str) -> None:
-    """Create ``folder`` (and its parents) or say in one line, after ``prefix``, why not."""
+def check_folder_possible(folder: Path, prefix: str) -> None:
+    """Refuse, in one line after ``prefix``, a ``folder`` that could not be created because
+    it or one of its parents is a file; creates nothing."""
     for parent in (folder, *folder.parents):
         if parent.is_symlink() or parent.exists():
             if not parent.is_dir():
                 raise InputError(f"{prefix}: {parent} is a file, not a folder")
             break
+
+
+def _make_folder(folder: Path, prefix: str) -> None:
+    """Create ``folder`` (and its parents) or say in one line, after ``prefix``, why not."""
+    check_folder_possible(folder, prefix)
     try:
         folder.mkdir(parents=True, exist_ok=True)
     except OSError as exc:

@@ -21,7 +21,7 @@ from typing import Any
 import numpy as np
 import tomli_w
 
-from tonewright.cli_support import atomic_write_bytes, prepare_out_dir
+from tonewright.cli_support import atomic_write_bytes, check_folder_possible, prepare_out_dir
 from tonewright.design import DesignReport
 from tonewright.optimizer import STATUS_MESSAGES
 from tonewright.plots import figure_bytes, profile_figure, shape_figure, spectrum_figure
@@ -211,6 +211,8 @@ def check_out_dir(out: Path, *, force: bool) -> None:
     creating anything: a new folder is made only once every file is rendered."""
     if Path(out).exists():
         prepare_out_dir(Path(out), OUTPUTS, force=force)
+    else:
+        check_folder_possible(Path(out), f"--out {out}")
 
 
 def summary_lines(report: DesignReport, folder: Path | None = None) -> list[str]:
