@@ -1,4 +1,4 @@
-"""Cut table CSV: rows agree with the profile; every breakpoint and grid station is present."""
+"""Cut table CSV: rows agree with the profile; every round station and corner is present."""
 
 from __future__ import annotations
 
@@ -31,24 +31,25 @@ def test_rows_match_the_profile(spacing):
     assert np.allclose(t, part.thickness_m(x / 1000) * 1000, atol=0.005 + 1e-9)
     # Depth is measured from the blank's bottom face: thickness + depth = blank (two roundings).
     assert np.allclose(t + d, T, atol=0.01 + 1e-9)
-    # Every design breakpoint and every grid station is listed, and labelled.
-    design = np.asarray(part.stations_x_m) * 1000
+    # Every round station and every corner of the profile is listed, and labelled.
+    corners = np.asarray(part.corners_m()) * 1000
     grid = np.arange(0.0, part.length_m * 1000 + 1e-9, spacing)
-    for v in np.concatenate((design, grid)):
+    for v in np.concatenate((corners, grid)):
         assert np.min(np.abs(x - v)) < 0.006
-    kinds = {r["kind"] for r in rows}
-    assert kinds == {"design", "grid"}
-    assert sum(r["kind"] == "design" for r in rows) == design.size
+    assert {r["kind"] for r in rows} == {"corner", "grid"}
+    assert sum(r["kind"] == "corner" for r in rows) == corners.size
+    # Nothing else: a maker reads round stations, not the design's sampling.
+    ends = [0.0, part.length_m * 1000]
+    assert len(rows) == len(set(np.round(np.concatenate((corners, grid, ends)), 6)))
 
 
-def test_straight_between_rows():
-    # Because all breakpoints are rows, interpolating the table reproduces the profile.
+def test_corners_are_where_the_cut_starts_ends_and_is_thinnest():
     part = demo_part()
-    rows = cut_table_rows(part, 5.0)
-    x = np.array([r[0] for r in rows])
-    t = np.array([r[1] for r in rows])
-    mid = 0.5 * (x[1:] + x[:-1])
-    assert np.allclose(np.interp(mid, x, t), part.thickness_m(mid / 1000) * 1000, atol=1e-9)
+    corners = np.asarray(part.corners_m()) * 1000
+    # the demo arch runs from 90 to 290 mm and is thinnest at its middle (190 mm); the cut's
+    # first station with any depth is 100 mm, so the cut starts at the station before it
+    assert corners[0] == pytest.approx(90.0) and corners[-1] == pytest.approx(290.0)
+    assert np.min(np.abs(corners - 190.0)) < 1e-6
 
 
 def test_header_defines_units_and_carries_cautions():

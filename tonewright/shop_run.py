@@ -19,6 +19,7 @@ from tonewright.errors import InputError
 from tonewright.forward import Bar, String, families_of, solve
 from tonewright.partfile import PartFile, load_part
 from tonewright.shop import ShopPart, TubeCut, WoundString
+from tonewright.shop.part import MISSED_MARK
 
 __all__ = [
     "MISSED_MARK",
@@ -35,8 +36,6 @@ __all__ = [
 STEEL_DENSITY = 7850.0  # kg/m^3, the string's core (common practice, no source)
 COPPER_DENSITY = 8960.0  # kg/m^3, the winding (common practice, no source)
 WRAP_DIAMETER = 0.3e-3  # m
-
-MISSED_MARK = "MISSED DESIGN"
 
 
 @dataclass(frozen=True)
@@ -66,6 +65,15 @@ def design_verdict(file: Path) -> DesignVerdict | None:
     return DesignVerdict(bool(payload["converged"]), str(payload.get("message", "")))
 
 
+def certifier_of(file: Path) -> str | None:
+    """The model a result.json says certified its partials (None for a part file)."""
+    if Path(file).suffix.lower() != ".json":
+        return None
+    payload = json.loads(Path(file).read_text(encoding="utf-8"))
+    by = payload.get("certified_by")
+    return str(by) if by else None
+
+
 def _partials_of(file: Path, modal) -> tuple[tuple[str, float | None, float], ...]:
     """Target and predicted partials: from a result.json when given, else the model's."""
     if file.suffix.lower() == ".json":
@@ -82,14 +90,18 @@ def shop_part(
     base: Path | None,
     name: str,
     partials: Sequence[tuple[str, float | None, float]] | None = None,
+    certified_by: str | None = None,
 ) -> tuple[object, ShopPart | None, object]:
     """The forward part, its ShopPart (bars; None otherwise) and its certified solve.
     ``partials``: (label, target Hz or None, predicted Hz); the model's first three when
-    None."""
+    None. ``certified_by``: the model those partials come from (a design's certifier); the
+    beam solve made here when None."""
     part = part_file.to_part(base)
     counts = dict.fromkeys(families_of(part), 0)
     counts["transverse" if isinstance(part, String) else "bending"] = 3
     modal = solve(part, counts, tol_cents=0.01, theory=part_file.model.theory)
+    if certified_by is None:
+        certified_by = f"{part_file.model.theory} beam model, {modal.message}"
     if not isinstance(part, Bar):
         return part, None, modal
     if partials is None:
@@ -130,7 +142,8 @@ def shop_part(
         node_tolerance_m=0.5e-3,
         material_name=spec.name if spec else "",
         partials=tuple(partials),
-        notes=(f"Model: {part_file.model.theory} beam, {modal.message}.",),
+        notes=(f"Partials (model Hz) from the {certified_by}.",),
+        certified_by=certified_by,
     )
     return part, shop, modal
 
@@ -143,7 +156,7 @@ def load_shop_source(file: Path) -> ShopSource:
     modal_partials = None
     if file.suffix.lower() == ".json":
         modal_partials = _partials_of(file, None)
-    part, shop, modal = shop_part(part_file, base, file.stem, modal_partials)
+    part, shop, modal = shop_part(part_file, base, file.stem, modal_partials, certifier_of(file))
     return ShopSource(part_file, part, modal, shop, verdict)
 
 
@@ -153,6 +166,7 @@ def marked_missed(shop: ShopPart, message: str) -> ShopPart:
         shop,
         title=f"{shop.title} - {MISSED_MARK}",
         notes=(f"{MISSED_MARK}: this design misses its target ({message}).", *shop.notes),
+        missed=f"this design misses its target ({message})",
     )
 
 
