@@ -10,7 +10,7 @@ import pytest
 from shop_demo import demo_part
 
 from tonewright.errors import InputError
-from tonewright.shop.cuttable import cut_table_csv, cut_table_rows
+from tonewright.shop.cuttable import cut_table_csv
 
 
 def read(text: str) -> list[dict[str, str]]:

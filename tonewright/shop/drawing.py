@@ -231,7 +231,7 @@ def _station_tables(
     blocks = [rows[k : k + per_block] for k in range(0, len(rows), per_block)]
     tables = [
         _Table(
-            f"Undercut (mm), every {spacing:g} over the cut" if b == 0 else "Undercut, continued",
+            "Undercut (mm)" if b == 0 else "Undercut, continued",
             ("x", "leave t", "cut depth"),
             tuple(block),
             (14.0, 13.0, 15.0),
