@@ -233,6 +233,11 @@ def blank_from_part_file(path: Path, material: str | None) -> Blank:
     if part_file.bar is None:
         raise InputError(f"{path.name}: calibration needs a [bar] blank, got a [{part_file.kind}]")
     table = part_file.bar
+    if table.undercut is not None:
+        raise InputError(
+            f"{path.name}: bar.undercut is a cut bar; calibration needs the uncut blank "
+            "(drop [bar.undercut], or calibrate before cutting)"
+        )
     for name, stations, uniform in (
         ("profile", table.profile, table.thickness),
         ("width_profile", table.width_profile, table.width),
