@@ -5,12 +5,12 @@ from __future__ import annotations
 
 import numpy as np
 import pytest
-
-from tonewright.errors import InputError
 from tonewright.forward import Bar, Material
 from tonewright.forward.geometry import constant
 from tonewright.optimizer import BarUndercut
 from tonewright.optimizer.spaces import undercut_terms, undercut_thickness
+
+from tonewright.errors import InputError
 from tonewright.partfile import parse_part
 
 BASE = {"title": "t", "material": "honduras-rosewood"}
@@ -67,7 +67,7 @@ def test_a_part_file_reads_the_undercut_and_checks_its_stations():
     parse_part(_bar({**CUT, "stations": good}))
     bad = [list(p) for p in good]
     bad[10][1] += 0.05  # a 0.05 mm slip of the pen is caught, not cut
-    with pytest.raises(InputError, match="undercut.stations.*disagrees"):
+    with pytest.raises(InputError, match=r"undercut\.stations.*disagrees"):
         parse_part(_bar({**CUT, "stations": bad}))
 
 
