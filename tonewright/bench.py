@@ -31,7 +31,7 @@ from tonewright.acoustics.preview import (
 from tonewright.audio import TapRecording, read_tap
 from tonewright.cli_support import parse_partials
 from tonewright.errors import InputError
-from tonewright.forward import Bar, Material, ModalResult, Part, String, constant, solve
+from tonewright.forward import Bar, Material, ModalResult, Part, String, Tube, constant, solve
 from tonewright.materials import MaterialSpec, MaterialTable, list_materials, load_material
 from tonewright.optimizer import (
     Advice,
@@ -665,6 +665,9 @@ def advise_bar(request: AdviseRequest) -> AdviceReport:
 
 MODE_COUNTS = {"bending": 12, "torsion": 6, "transverse": 24}
 DEFAULT_OFFSET_M = 5e-3  # players strike a little off the centre line (common practice)
+# chimes are struck on the rim of the top end (common practice, no source); heard from the
+# same distance off the other end
+TUBE_STRIKE_SHARE = 0.03
 _CONTACT_MS_RANGE = (0.05, 20.0)
 
 
@@ -765,8 +768,11 @@ def preview_sound(request: SoundRequest) -> SoundReport:
     if not (math.isfinite(eta) and 0.0 < eta < 1.0):
         raise InputError(f"--loss-factor {eta:g}: give a value between 0 and 1")
 
-    x_s = _position(r.strike_at, 0.5 * L, "--strike-at")
-    x_l = _position(r.listen_at, 0.4 * L, "--listen-at")
+    # a chime is struck near its top end, where every bending mode moves (at its centre the
+    # even modes have nodes, and with them the strike note's modes 4 and 6 would vanish)
+    tube = isinstance(part, Tube)
+    x_s = _position(r.strike_at, (TUBE_STRIKE_SHARE if tube else 0.5) * L, "--strike-at")
+    x_l = _position(r.listen_at, (1 - TUBE_STRIKE_SHARE if tube else 0.4) * L, "--listen-at")
     if isinstance(part, Bar):
         quarter = 0.25 * float(part.width(np.array([x_s]))[0])
         y_s = _position(r.strike_offset, min(DEFAULT_OFFSET_M, quarter), "--strike-offset")

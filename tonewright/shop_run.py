@@ -15,8 +15,9 @@ from pathlib import Path
 
 import numpy as np
 
+from tonewright.acoustics.pitch import strike_note_hz
 from tonewright.errors import InputError
-from tonewright.forward import Bar, String, families_of, solve
+from tonewright.forward import Bar, String, Tube, families_of, solve
 from tonewright.partfile import PartFile, load_part
 from tonewright.shop import ShopPart, TubeCut, WoundString
 from tonewright.shop.part import MISSED_MARK
@@ -98,7 +99,10 @@ def shop_part(
     beam solve made here when None."""
     part = part_file.to_part(base)
     counts = dict.fromkeys(families_of(part), 0)
-    counts["transverse" if isinstance(part, String) else "bending"] = 3
+    # a tube's pitch is its strike note, fitted to bending modes 4-6
+    counts["transverse" if isinstance(part, String) else "bending"] = (
+        6 if isinstance(part, Tube) else 3
+    )
     modal = solve(part, counts, tol_cents=0.01, theory=part_file.model.theory)
     if certified_by is None:
         certified_by = f"{part_file.model.theory} beam model, {modal.message}"
@@ -187,10 +191,29 @@ def marked_missed(shop: ShopPart, message: str) -> ShopPart:
     )
 
 
-def tube_cut_of(source: ShopSource, name: str) -> TubeCut:
-    """The cut sheet entry of a tube: length, section, suspension node, predicted pitch."""
+def _strike_of(file: Path | None) -> tuple[float | None, float | None]:
+    """(target Hz, certified Hz) of a result.json's strike-note goal, or (None, None)."""
+    if file is None or Path(file).suffix.lower() != ".json":
+        return None, None
+    for row in json.loads(Path(file).read_text(encoding="utf-8")).get("partials", []):
+        if row.get("family") == "strike":
+            return row.get("target_hz"), row.get("achieved_hz")
+    return None, None
+
+
+def tube_cut_of(source: ShopSource, name: str, file: Path | None = None) -> TubeCut:
+    """The cut sheet entry of a tube: length, section, suspension node and its strike note
+    (from the design's result when ``file`` is one, else from the solve), with its target."""
     part_file, part, modal = source.part_file, source.part, source.modal
     nodes = modal.family("bending")[0].nodes_m
+    target, strike = _strike_of(file)
+    if strike is None:
+        strike = strike_note_hz([m.frequency_hz for m in modal.family("bending")])
+    spec = part_file.material_spec(None) if part_file.material else None
+    a4 = part_file.target.a4_hz if part_file.target is not None else 440.0
+    missed = ""
+    if source.design is not None and not source.design.converged:
+        missed = f"this design misses its target ({source.design.message})"
     return TubeCut(
         name=name,
         length_m=part.length,
@@ -198,8 +221,13 @@ def tube_cut_of(source: ShopSource, name: str) -> TubeCut:
         wall_m=part_file.tube.wall,
         node_from_top_m=nodes[0],
         node_tolerance_m=0.5e-3,
-        material_name=(part_file.material_spec(None).name if part_file.material else ""),
-        predicted_hz=modal.frequency("bending", 1),
+        material_name=spec.name if spec else "",
+        target_hz=target,
+        predicted_hz=strike,
+        material_kind="wood" if spec is not None and spec.kind == "wood" else "metal",
+        mode1_hz=modal.frequency("bending", 1),
+        a4_hz=a4,
+        missed=missed,
     )
 
 

@@ -100,7 +100,7 @@ def register(app: typer.Typer) -> None:
             )
             written = write_all(shop, out, options, force=force)
         elif isinstance(part, Tube):
-            cut = tube_cut_of(source, (part_file.title or file.stem) + mark)
+            cut = tube_cut_of(source, (part_file.title or file.stem) + mark, file)
             names = ["tube_cut_sheet.txt", "tube_cut_list.csv"]
             out = prepare_out_dir(out, names, force=force)
             atomic_write_text(out / names[0], tube_cut_sheet([cut]), overwrite=True)
