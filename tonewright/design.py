@@ -358,7 +358,9 @@ def undercut_table(problem: Problem, u: np.ndarray) -> dict[str, Any]:
         tuple(d * 1e-3 for d in table["depths"]),
         table.get("flat"),
     )
-    x_mm = np.unique(np.round(x * 1e3, 2))
+    L_mm = round(L * 1e3, 6)  # the length as written; a free length is no round number
+    x_mm = np.round(x * 1e3, 2)
+    x_mm = np.unique(np.concatenate([x_mm[x_mm < L_mm], [L_mm]]))
     h = field(x_mm * 1e-3) * 1e3
     table["stations"] = [[float(a), round(float(b), 2)] for a, b in zip(x_mm, h, strict=True)]
     return table
@@ -442,6 +444,8 @@ def part_table(problem: Problem, u: np.ndarray) -> dict[str, Any]:
         x = np.linspace(0.0, L, int(np.ceil(L / 1e-3)) + 1)
         mu = space.density_and_jacobian(u, x)[0]
         string: dict[str, Any] = {"length": round(L * 1e3, 6), "tension": s.tension}
+        if s.diameter is not None:  # the core wire the winding goes on
+            string["diameter"] = round(s.diameter * 1e3, 6)
         string["density_profile"] = [
             [round(a * 1e3, 6), float(f"{b:.9g}")] for a, b in zip(x, mu, strict=True)
         ]
@@ -479,7 +483,11 @@ class CertifiedPartial:
 
     @property
     def label(self) -> str:
-        return "strike note" if self.family == "strike" else f"{self.family} {self.order}"
+        if self.family == "strike":
+            return "strike note"
+        if self.family == "transverse":  # a string's own word: its modes, not a beam's
+            return f"mode {self.order}"
+        return f"{self.family} {self.order}"
 
 
 @dataclass(frozen=True)
@@ -494,6 +502,7 @@ class DesignFigures:
     holes: tuple[tuple[float, float, float], ...]  # (x, diameter, height) mm
     shape: tuple[float, ...] | None  # tubes and strings: the first mode shape
     nodes_mm: tuple[float, ...]
+    density_g_m: tuple[float, ...] | None = None  # strings: the designed linear density
 
 
 @dataclass(frozen=True, eq=False)
@@ -548,8 +557,12 @@ def _unwanted_model(outcome: Outcome) -> str:
 def _figures(problem: Problem, part: Part, modal, rows: list[dict[str, Any]]) -> DesignFigures:
     first = "bending" if modal.family("bending") else "transverse"
     nodes = tuple(x * 1e3 for x in modal.family(first)[0].nodes_m)
-    top = 1.35 * max(r["achieved_hz"] for r in rows)
+    used = [r["achieved_hz"] for r in rows]
+    for k, _ in STRIKE_MODES if any(r["family"] == "strike" for r in rows) else ():
+        used.append(modal.frequency("bending", k))  # the strike note's own modes
+    top = 1.35 * max(used)
     modes = tuple((m.family, m.order, m.frequency_hz) for m in modal.modes if m.frequency_hz <= top)
+    modes += tuple(("strike", 1, r["achieved_hz"]) for r in rows if r["family"] == "strike")
     targets = tuple(
         (
             f"{r['family']} {r['order']}" if r["family"] != "strike" else "strike",
@@ -574,8 +587,19 @@ def _figures(problem: Problem, part: Part, modal, rows: list[dict[str, Any]]) ->
     else:
         holes, thickness, blank = (), None, None
         shape = tuple(float(v) for v in modal.modes[0].shape(x))
+    density = None
+    if isinstance(part, String):
+        density = tuple(float(v) * 1e3 for v in part.linear_density(x))
     return DesignFigures(
-        modes, targets, tuple(float(v) for v in x * 1e3), thickness, blank, holes, shape, nodes
+        modes,
+        targets,
+        tuple(float(v) for v in x * 1e3),
+        thickness,
+        blank,
+        holes,
+        shape,
+        nodes,
+        density,
     )
 
 

@@ -24,12 +24,21 @@ import tomli_w
 from tonewright.cli_support import atomic_write_bytes, check_folder_possible, prepare_out_dir
 from tonewright.design import DesignReport
 from tonewright.optimizer import STATUS_MESSAGES
-from tonewright.plots import figure_bytes, profile_figure, shape_figure, spectrum_figure
+from tonewright.plots import (
+    density_figure,
+    figure_bytes,
+    profile_figure,
+    shape_figure,
+    spectrum_figure,
+)
 
 __all__ = [
     "CAUTION",
     "OUTPUTS",
+    "STRING_CAUTION",
+    "TUBE_CAUTION",
     "WRITERS",
+    "caution_of",
     "check_out_dir",
     "design_files",
     "part_toml",
@@ -49,6 +58,24 @@ CAUTION = (
     "approach the target in small steps. Use guards and dust extraction (many tonewood dusts "
     "are sensitisers), eye and hearing protection, and follow your machine's manual."
 )
+TUBE_CAUTION = (
+    "Before cutting: material cannot be put back. Cut the tube a little long, tap, and "
+    "shorten it in small steps. Clamp it, deburr the cut ends (sharp), use extraction for "
+    "metal dust, eye and hearing protection, and follow your machine's manual."
+)
+STRING_CAUTION = (
+    "Before winding: wind no more than the schedule gives and weigh as you go. A string under "
+    "tension stores energy: wear eye protection and never lean over it while tensioning."
+)
+
+
+def caution_of(report: DesignReport) -> str:
+    """The caution for what the design makes: a bar, a tube or a string."""
+    if "tube" in report.part:
+        return TUBE_CAUTION
+    if "string" in report.part:
+        return STRING_CAUTION
+    return CAUTION
 
 
 def _json_ready(obj: Any) -> Any:
@@ -126,7 +153,7 @@ def result_payload(report: DesignReport) -> dict[str, Any]:
             }
             for label, steps in report.corrections
         ],
-        "caution": CAUTION,
+        "caution": caution_of(report),
     }
 
 
@@ -187,15 +214,26 @@ def compact_toml(table: Mapping[str, Any], prefix: str = "") -> str:
     return "\n".join(lines).strip("\n") + "\n"
 
 
+_KIND_NOTES = {
+    "bar": "# A designed bar's cut is [bar.undercut]: the design's own shape, which tonewright\n"
+    "# evaluates exactly; its stations (every 5 mm and at the cut's corners, thickness to\n"
+    "# leave from the top face) are for reading and are checked against it.\n",
+    "string": "# density_profile: linear density in kg/m (core plus winding) at 1 mm stations;\n"
+    "# diameter is the core wire; 'tonewright shop' turns it into a winding schedule.\n",
+    "tube": "# The tube's length is the design; hang it at the node 'tonewright shop' gives.\n",
+}
+
+
 def part_toml(report: DesignReport) -> dict[str, bytes]:
     state = "meets its target" if report.converged else "DOES NOT meet its target"
     header = (
         f"# Designed by tonewright: {state} ({report.message}).\n"
         f"# Partials certified by the {report.certified_by}.\n"
-        "# Lengths in mm. A designed bar's cut is [bar.undercut]: the design's own shape, which\n"
-        "# tonewright evaluates exactly; its stations (every 5 mm and at the cut's corners,\n"
-        "# thickness to leave from the top face) are for reading and are checked against it.\n"
-        "# " + CAUTION + "\n\n"
+        "# Lengths in mm.\n"
+        + _KIND_NOTES.get(next((k for k in _KIND_NOTES if k in report.part), ""), "")
+        + "# "
+        + caution_of(report)
+        + "\n\n"
     )
     return {"part.toml": (header + compact_toml(_json_ready(report.part))).encode("utf-8")}
 
@@ -218,6 +256,8 @@ def profile_files(report: DesignReport) -> dict[str, bytes]:
             return profile_figure(
                 x, np.asarray(fig.thickness_mm), fig.blank_mm, fig.nodes_mm, fig.holes
             )
+        if fig.density_g_m is not None:
+            return density_figure(x, np.asarray(fig.density_g_m), fig.nodes_mm)
         return shape_figure(x, np.asarray(fig.shape), fig.nodes_mm)
 
     return {f"profile.{fmt}": figure_bytes(make(), fmt) for fmt in ("png", "svg")}
@@ -341,5 +381,5 @@ def tail_lines(report: DesignReport, folder: Path | None) -> list[str]:
     )
     if folder is not None:
         lines.append(f"  wrote {folder}/part.toml, result.json, profile.png/svg, spectrum.png/svg")
-    lines.append(f"  {CAUTION}")
+    lines.append(f"  {caution_of(report)}")
     return lines

@@ -36,7 +36,6 @@ __all__ = [
 
 STEEL_DENSITY = 7850.0  # kg/m^3, the string's core (common practice, no source)
 COPPER_DENSITY = 8960.0  # kg/m^3, the winding (common practice, no source)
-WRAP_DIAMETER = 0.3e-3  # m
 
 
 @dataclass(frozen=True)
@@ -231,20 +230,53 @@ def tube_cut_of(source: ShopSource, name: str, file: Path | None = None) -> Tube
     )
 
 
-def wound_string_of(part_file: PartFile, name: str) -> WoundString:
-    """A string's winding schedule: a steel core at its lightest density, copper wrap."""
+WINDING_STATIONS_MM = 10.0  # segments of the winding schedule
+# copper winding wire sizes a maker can buy, mm (common practice, no source)
+WRAP_SIZES_MM = (0.15, 0.2, 0.25, 0.3, 0.35, 0.4, 0.5, 0.6, 0.7, 0.8, 1.0, 1.2)
+WRAP_MARGIN = 1.15  # the heaviest segment stays this far under close-wound
+
+
+def _wrap_diameter(core_d: float, added_max: float) -> float:
+    """The finest wrap wire that adds ``added_max`` kg/m with room to spare: close-wound
+    (pitch = wire diameter) a wire of diameter d adds rho pi d^2 / 4 sqrt((pi D)^2 + d^2) / d,
+    D = core + d, on a single layer."""
+    for d_mm in WRAP_SIZES_MM:
+        d = d_mm * 1e-3
+        close = COPPER_DENSITY * np.pi * d * d / 4 * np.hypot(np.pi * (core_d + d), d) / d
+        if close >= WRAP_MARGIN * added_max:
+            return d
+    raise InputError(
+        f"string: adding {added_max * 1e3:.3g} g/m needs a wrap heavier than "
+        f"{WRAP_SIZES_MM[-1]:g} mm copper; use a thicker core (diameter)"
+    )
+
+
+def wound_string_of(part_file: PartFile, name: str, base: Path | None = None) -> WoundString:
+    """A string's winding schedule: its own core wire (``diameter`` and material) when the
+    part gives one, else a steel core at the lightest density; a copper wrap. The density is
+    read at ``WINDING_STATIONS_MM`` stations (and the profile's ends)."""
     s = part_file.string
     if not s.density_profile:
         raise InputError("string: a winding schedule needs density_profile stations")
     x, mu = np.array(s.density_profile).T
-    core_mu = float(mu.min())
+    if s.diameter is not None:
+        spec = part_file.material_spec(base)
+        core_d, core_rho = s.diameter, spec.rho
+    else:
+        core_d = float(np.sqrt(4 * float(mu.min()) / (np.pi * STEEL_DENSITY)))
+        core_rho = STEEL_DENSITY
+    L = s.length
+    step = WINDING_STATIONS_MM * 1e-3
+    xs = np.unique(np.concatenate([np.arange(0.0, L, step), [L]]))
+    core_mu = core_rho * np.pi * core_d**2 / 4
+    wrap = _wrap_diameter(core_d, max(float(mu.max()) - core_mu, 0.0))
     return WoundString(
         title=name,
-        length_m=s.length,
-        stations_x_m=tuple(x),
-        linear_density_kg_m=tuple(mu),
-        core_diameter_m=np.sqrt(4 * core_mu / (np.pi * STEEL_DENSITY)),
-        core_density_kg_m3=STEEL_DENSITY,
-        wrap_diameter_m=WRAP_DIAMETER,
+        length_m=L,
+        stations_x_m=tuple(xs),
+        linear_density_kg_m=tuple(np.interp(xs, x, mu)),
+        core_diameter_m=core_d,
+        core_density_kg_m3=core_rho,
+        wrap_diameter_m=wrap,
         wrap_density_kg_m3=COPPER_DENSITY,
     )

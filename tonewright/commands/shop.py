@@ -107,7 +107,7 @@ def register(app: typer.Typer) -> None:
             atomic_write_text(out / names[1], tube_cut_list_csv([cut]), overwrite=True)
             written = [out / n for n in names]
         else:
-            wound = wound_string_of(part_file, (part_file.title or file.stem) + mark)
+            wound = wound_string_of(part_file, (part_file.title or file.stem) + mark, file.parent)
             out = prepare_out_dir(out, ["winding_schedule.csv"], force=force)
             atomic_write_text(
                 out / "winding_schedule.csv", winding_schedule_csv(wound), overwrite=True
