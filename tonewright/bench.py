@@ -552,7 +552,8 @@ def _step_json(i: int, step: Step, goals) -> dict[str, Any]:
         "eased_edge_mm": _mm(min(cut.ramp_m, 0.25 * cut.width_m), 2),
         "serves": step.serves,
         "predicted": _rows(goals, step.predicted_hz, step.predicted_cents),
-        "thinnest_after_mm": _mm(step.thinnest_m),
+        # the thinnest point inside this step's windows once the step is cut
+        "thinnest_in_window_after_mm": _mm(step.thinnest_m),
     }
 
 
@@ -657,6 +658,7 @@ def advise_bar(request: AdviseRequest) -> AdviceReport:
     advice = advise(bar, goals, measured.f_hz, options, measured.sd_cents)
     warnings += list(advice.calibration.warnings)
     payload = advice_payload(advice, bar.material, r.title, h_min, warnings)
+    payload["a4_hz"] = r.part_file.target.a4_hz  # the reference the target's notes use
     return AdviceReport(advice, length_mm, tuple(warnings), MappingProxyType(payload))
 
 

@@ -301,6 +301,24 @@ def station_profile(problem: Problem, u: np.ndarray, spacing: float = 1e-3) -> n
     return np.column_stack([x, h])
 
 
+def pitch_convention(problem: Problem) -> str:
+    """How the target's pitches were set, in one line: the A4 reference and temperament, and
+    any stretch or temperature shift (which moves every target by the same cents)."""
+    t = problem.target
+    spec = problem.part_file.target
+    words = f"notes in equal temperament at A4 = {t.a4_hz:g} Hz"
+    if abs(t.stretch_cents) > 1e-9:
+        words += f"; stretched {t.stretch_cents:+.2f} cents"
+    if spec is not None and spec.temperature_c is not None:
+        words += (
+            f"; aimed {t.temperature_cents:+.2f} cents from the nominal pitch so that it sounds "
+            f"on pitch at {spec.temperature_c:g} C (material data at 20 C)"
+        )
+    else:
+        words += "; material data and pitch at 20 C"
+    return words
+
+
 def variable_values(space, u: np.ndarray) -> tuple[tuple[str, float], ...]:
     """The design variables in their own units, each name saying its unit (the scaled 0..1
     values are what a restart needs; these are what a maker reads)."""
@@ -532,6 +550,7 @@ class DesignReport:
     corrections: tuple[tuple[str, tuple[Any, ...]], ...]  # (model label, CorrectionSteps)
     figures: DesignFigures
     values: tuple[tuple[str, float], ...] = ()  # the variables in their units (name with unit)
+    pitch_convention: str = ""  # A4, temperament, and any stretch or temperature shift
 
     @property
     def converged(self) -> bool:
@@ -674,6 +693,7 @@ def design_report(
         ),
         variables=tuple(zip(names, map(float, result.u), strict=True)),
         values=variable_values(problem.space, result.u),
+        pitch_convention=pitch_convention(problem),
         summary=dict(problem.space.describe(result.u)),
         seed=problem.table.seed,
         solves=result.solves,

@@ -138,6 +138,7 @@ def result_payload(report: DesignReport) -> dict[str, Any]:
             "forward_solves": report.solves,
         },
         "certified_by": report.certified_by,
+        "pitch_convention": report.pitch_convention,
         "fidelity": report.fidelity,
         "corrections": [
             {
@@ -229,6 +230,7 @@ def part_toml(report: DesignReport) -> dict[str, bytes]:
     header = (
         f"# Designed by tonewright: {state} ({report.message}).\n"
         f"# Partials certified by the {report.certified_by}.\n"
+        f"# Target: {report.pitch_convention}.\n"
         "# Lengths in mm.\n"
         + _KIND_NOTES.get(next((k for k in _KIND_NOTES if k in report.part), ""), "")
         + "# "
@@ -379,6 +381,8 @@ def tail_lines(report: DesignReport, folder: Path | None) -> list[str]:
     lines.append(
         f"  partials certified by the {report.certified_by}; {report.solves} forward solves"
     )
+    if report.pitch_convention:
+        lines.append(f"  target: {report.pitch_convention}")
     if folder is not None:
         lines.append(f"  wrote {folder}/part.toml, result.json, profile.png/svg, spectrum.png/svg")
     lines.append(f"  {caution_of(report)}")
