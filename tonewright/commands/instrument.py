@@ -67,7 +67,7 @@ def print_table(console: Console, rows: Sequence[BarRow]) -> None:
             if name not in labels:
                 labels.append(name)
     for name in labels:
-        table.add_column(f"{name}\ncents", justify="right", no_wrap=True)
+        table.add_column(name, justify="right", no_wrap=True)
     for name in ("length", "deepest", "thinnest"):
         table.add_column(name, justify="right", no_wrap=True)
     table.add_column("nearest", no_wrap=True)
@@ -91,8 +91,8 @@ def print_table(console: Console, rows: Sequence[BarRow]) -> None:
         )
     console.print(table)
     console.print(
-        "  lengths in mm; B1, B2, ... cents: each tuned bending partial from its target (empty: "
-        "not tuned on that bar); nearest: the torsional "
+        "  lengths in mm; B1, B2, ...: cents of each tuned bending partial from its target "
+        "(empty: not tuned on that bar); nearest: the torsional "
         "(T) or lateral (L) mode nearest a tuned partial, and how far from it, by the "
         f"{UNWANTED_CAVEAT}"
     )
