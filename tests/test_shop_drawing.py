@@ -82,7 +82,7 @@ def test_a_dense_profile_is_tabled_at_round_stations():
     part = ShopPart("dense", 0.38, 0.05, 0.02, tuple(x), tuple(t))
     root = ET.fromstring(drawing_svg(part))
     values = texts(root)
-    assert re.search(r"every (5|10) over the cut", " ".join(values))
+    assert re.search(r"Stations every (5|10) mm over", " ".join(values))
     rows = [v for v in values if re.fullmatch(r"\d+\.\d\*?", v)]
     corners = {f"{c * 1000:.1f}" for c in part.corners_m()}  # also labelled on the side view
     round_rows = [v for v in rows if not v.endswith("*") and v not in corners]
