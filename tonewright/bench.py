@@ -670,6 +670,9 @@ DEFAULT_OFFSET_M = 5e-3  # players strike a little off the centre line (common p
 # chimes are struck on the rim of the top end (common practice, no source); heard from the
 # same distance off the other end
 TUBE_STRIKE_SHARE = 0.03
+# a string is struck or plucked near one end, about 1/8 of its length in (common practice, no
+# source): at its centre every even mode would be silent
+STRING_STRIKE_SHARE = 0.125
 _CONTACT_MS_RANGE = (0.05, 20.0)
 
 
@@ -773,7 +776,10 @@ def preview_sound(request: SoundRequest) -> SoundReport:
     # a chime is struck near its top end, where every bending mode moves (at its centre the
     # even modes have nodes, and with them the strike note's modes 4 and 6 would vanish)
     tube = isinstance(part, Tube)
-    x_s = _position(r.strike_at, (TUBE_STRIKE_SHARE if tube else 0.5) * L, "--strike-at")
+    strike_share = (
+        TUBE_STRIKE_SHARE if tube else STRING_STRIKE_SHARE if isinstance(part, String) else 0.5
+    )
+    x_s = _position(r.strike_at, strike_share * L, "--strike-at")
     x_l = _position(r.listen_at, (1 - TUBE_STRIKE_SHARE if tube else 0.4) * L, "--listen-at")
     if isinstance(part, Bar):
         quarter = 0.25 * float(part.width(np.array([x_s]))[0])

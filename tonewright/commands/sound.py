@@ -87,7 +87,7 @@ def register(app: typer.Typer) -> None:
             str | None,
             typer.Option(
                 help="Strike position from the left end, mm (a bar: its centre; a tube: 3 % of "
-                "its length from the top end)."
+                "its length from the top end; a string: 1/8 of its length)."
             ),
         ] = None,
         strike_offset: Annotated[
