@@ -65,3 +65,16 @@ def test_header_defines_units_and_carries_cautions():
 def test_bad_spacing(bad):
     with pytest.raises(InputError, match="spacing_mm"):
         cut_table_csv(demo_part(), bad)
+
+
+def test_a_metal_bar_gets_metal_cautions():
+    from dataclasses import replace
+
+    from tonewright.shop.dxf import dxf_text
+
+    metal = replace(demo_part(), caution_kind="metal")
+    for text in (cut_table_csv(metal), dxf_text(metal)):
+        assert "deburr" in text and "tonewood" not in text
+    assert "tonewood" in cut_table_csv(demo_part())  # a wooden bar keeps the wood cautions
+    with pytest.raises(InputError, match="caution_kind"):
+        replace(demo_part(), caution_kind="glass")

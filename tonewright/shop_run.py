@@ -104,7 +104,7 @@ def shop_part(
     )
     modal = solve(part, counts, tol_cents=0.01, theory=part_file.model.theory)
     if certified_by is None:
-        certified_by = f"{part_file.model.theory} beam model, {modal.message}"
+        certified_by = f"{part_file.model.theory.capitalize()} beam model, {modal.message}"
     if not isinstance(part, Bar):
         return part, None, modal
     if partials is None:
@@ -149,6 +149,7 @@ def shop_part(
         partials=tuple(partials),
         notes=(f"Partials (model Hz) from the {certified_by}.",),
         certified_by=certified_by,
+        caution_kind="wood" if spec is None or spec.kind == "wood" else "metal",
     )
     return part, shop, modal
 

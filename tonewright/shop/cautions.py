@@ -34,14 +34,15 @@ CAUTIONS: tuple[str, ...] = (
 # Metal tubes and wire (chimes, wound strings): sharp edges and swarf, metal dust and fluids,
 # lead in some free-machining brasses (common workshop practice, no single source).
 METAL_CAUTIONS: tuple[str, ...] = (
-    "Clamp the tube or wire so it cannot spin or whip; keep hands clear of saws and cutters.",
+    "Clamp the work so it cannot spin or whip; keep hands clear of saws and cutters.",
     "Cut ends and swarf are sharp: deburr every cut end, and handle stock with gloves, never "
     "near a rotating tool.",
     "Use extraction or wet cutting for metal dust and fluid mist; some brasses contain lead: "
     "wash your hands after work and before eating.",
     "Wear eye and hearing protection.",
     "Follow the machine's manual and local practice; the operator decides what is safe.",
-    "Cut long and tune by shortening in small steps: material taken off cannot be put back.",
+    "Remove no more than the design gives; cut long (or shallow) and tune in small steps: "
+    "material taken off cannot be put back.",
 )
 
 STRING_CAUTIONS: tuple[str, ...] = (

@@ -64,7 +64,7 @@ def cut_table_csv(part: ShopPart, spacing_mm: float = 5.0) -> str:
         "(kind = corner: cut start and end, thinnest point, step edges);",
         "# between rows the cut follows the template's (and the DXF's) curve",
         *(f"# note: {n}" for n in part.notes),
-        *comment_lines("# ", 90),
+        *comment_lines("# ", 90, part.caution_kind),
     ]
     lines = [*head, "station_mm,thickness_to_leave_mm,depth_of_cut_mm,kind"]
     lines += [f"{x:.2f},{t:.2f},{d:.2f},{k}" for x, t, d, k in rows]

@@ -23,7 +23,7 @@ from matplotlib.patches import Circle, FancyArrowPatch, Rectangle
 from tonewright import __version__
 from tonewright.acoustics.pitch import cents
 from tonewright.errors import InputError
-from tonewright.shop.cautions import CAUTIONS
+from tonewright.shop.cautions import cautions_for
 from tonewright.shop.pages import new_page, page_size_mm, pdf_bytes, stable_rc, svg_bytes
 from tonewright.shop.part import MISSED_MARK, ShopPart
 
@@ -497,7 +497,9 @@ def _figure(part: ShopPart, paper: str, orientation: str) -> Figure:
 
     # Cautions along the bottom left, as many lines as the width needs.
     tb_x = fx1 - _TB_W
-    caution_lines = textwrap.wrap("CAUTIONS: " + " ".join(CAUTIONS), int((tb_x - fx0 - 6.0) / 1.05))
+    caution_lines = textwrap.wrap(
+        "CAUTIONS: " + " ".join(cautions_for(part.caution_kind)), int((tb_x - fx0 - 6.0) / 1.05)
+    )
     caution_h = 2.2 * len(caution_lines) + 4.0
     ax.text(
         fx0 + 2.0,

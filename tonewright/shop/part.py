@@ -90,6 +90,7 @@ class ShopPart:
     notes: tuple[str, ...] = ()
     certified_by: str = ""  # the model whose partials the sheets show
     missed: str = ""  # non-empty: the design missed its target (why); marked on every sheet
+    caution_kind: str = "wood"  # which cautions the sheets carry: "wood" or "metal"
 
     def __post_init__(self) -> None:
         put = object.__setattr__
@@ -149,6 +150,8 @@ class ShopPart:
             raise InputError(f"node_tolerance_m: {self.node_tolerance_m!r} must be >= 0 metres")
         put(self, "node_tolerance_m", tol)
 
+        if self.caution_kind not in ("wood", "metal"):
+            raise InputError(f"caution_kind: {self.caution_kind!r} must be 'wood' or 'metal'")
         for name in ("material_name", "grain_note", "certified_by", "missed"):
             if not isinstance(getattr(self, name), str):
                 raise InputError(f"{name}: {getattr(self, name)!r} must be text")

@@ -24,7 +24,7 @@ from matplotlib.figure import Figure
 from matplotlib.patches import Circle, Rectangle
 
 from tonewright.errors import InputError
-from tonewright.shop.cautions import CAUTIONS, PRINT_SCALE_NOTE
+from tonewright.shop.cautions import PRINT_SCALE_NOTE, cautions_for
 from tonewright.shop.pages import new_page, page_size_mm, pdf_bytes, stable_rc, svg_bytes
 from tonewright.shop.part import MISSED_MARK, ShopPart
 
@@ -307,7 +307,7 @@ def _draw_page_furniture(ax: Axes, layout: TileLayout, part: ShopPart, i: int) -
         fontsize=6,
     )
     chars = int((ww - 4) / 1.05)  # ~1.05 mm per character at 5 pt
-    text = "CAUTIONS: " + " ".join(CAUTIONS)
+    text = "CAUTIONS: " + " ".join(cautions_for(part.caution_kind))
     lines = textwrap.wrap(text, width=chars)
     ax.text(wx + 2, sy - 2.5, "\n".join(lines), va="top", fontsize=5, linespacing=1.25)
 
