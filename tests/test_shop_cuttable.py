@@ -10,7 +10,8 @@ import pytest
 from shop_demo import demo_part
 
 from tonewright.errors import InputError
-from tonewright.shop.cuttable import cut_table_csv
+from tonewright.shop.cuttable import cut_table_csv, cut_table_rows
+from tonewright.shop.part import ShopPart
 
 
 def read(text: str) -> list[dict[str, str]]:
@@ -78,3 +79,18 @@ def test_a_metal_bar_gets_metal_cautions():
     assert "tonewood" in cut_table_csv(demo_part())  # a wooden bar keeps the wood cautions
     with pytest.raises(InputError, match="caution_kind"):
         replace(demo_part(), caution_kind="glass")
+
+
+def test_a_step_is_two_rows_at_its_edge():
+    # a stepped cut as a design writes it: each edge as two stations 2 um apart
+    e = 1e-6
+    x = (0.0, 0.1 - e, 0.1 + e, 0.2 - e, 0.2 + e, 0.3)
+    t = (0.02, 0.02, 0.015, 0.015, 0.02, 0.02)
+    part = ShopPart("steps", 0.3, 0.04, 0.02, x, t)
+    rows = [r for r in cut_table_rows(part, 10.0) if r[3] == "corner"]
+    assert [(round(r[0], 3), round(r[1], 3)) for r in rows] == [
+        (100.0, 20.0),
+        (100.0, 15.0),
+        (200.0, 15.0),
+        (200.0, 20.0),
+    ]

@@ -7,7 +7,8 @@ Columns (millimetres, ``x`` from the bar's left end):
   up into the bar, ``T`` being the blank thickness.
 
 Stations: every ``spacing_mm`` from 0 (``kind = grid``) plus the profile's corners
-(``kind = corner``: where the cut starts and ends, its thinnest point, a step's edge). Between
+(``kind = corner``: where the cut starts and ends, its thinnest point, a step's edge; a step
+gives two rows at its x, the thickness before and after it). Between
 rows a smooth cut follows the curve of the template and the DXF, which carry every vertex.
 """
 
@@ -41,10 +42,11 @@ def cut_table_rows(
     )
     T = part.blank_thickness_m * 1000.0
     t = part.thickness_m(xs / 1000.0) * 1000.0
-    return [
-        (float(x), float(ti), float(T - ti), "grid" if k else "corner")
-        for x, ti, k in zip(xs, t, kinds, strict=True)
-    ]
+    rows = []
+    for x, ti, k in zip(xs, t, kinds, strict=True):
+        sides = (ti,) if k else tuple(v * 1000.0 for v in part.thickness_sides_m(x / 1000.0))
+        rows += [(float(x), float(v), float(T - v), "grid" if k else "corner") for v in sides]
+    return rows
 
 
 def cut_table_csv(part: ShopPart, spacing_mm: float = 5.0) -> str:

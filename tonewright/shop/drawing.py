@@ -208,10 +208,12 @@ def table_stations_mm(part: ShopPart, spacing_mm: float) -> list[tuple[float, fl
     """``(x, leave t, corner?)`` in mm at round stations over the cut plus the corners."""
     xs = part.round_stations_m(spacing_mm, cut_only=True)
     corners = part.corners_m()
-    return [
-        (x * 1000.0, float(part.thickness_m(x)) * 1000.0, any(abs(x - c) < 1e-6 for c in corners))
-        for x in xs
-    ]
+    out = []
+    for x in xs:
+        corner = any(abs(x - c) < 1e-6 for c in corners)
+        sides = part.thickness_sides_m(x) if corner else (float(part.thickness_m(x)),)
+        out += [(x * 1000.0, t * 1000.0, corner) for t in sides]  # a step: both sides
+    return out
 
 
 def _station_tables(
@@ -535,7 +537,8 @@ def _figure(part: ShopPart, paper: str, orientation: str) -> Figure:
         notes.insert(
             0,
             f"Stations every {spacing:g} mm over the cut, straight between rows; x* is a corner "
-            "of the profile (where the cut starts or ends, the thinnest point, a step's edge).",
+            "of the profile (where the cut starts or ends, the thinnest point, a step's edge: two "
+            "rows, before and after it).",
         )
         notes += list(part.notes) if user_notes else ["Further notes: see the cut table (CSV)."]
         placed, ok = [], True

@@ -226,7 +226,8 @@ class ShopPart:
         slope = np.diff(-depth) / np.diff(x)
         turn = np.abs(np.diff(np.arctan(slope)))
         out += list(x[1:-1][turn > CORNER_TURN])
-        out = np.unique(np.asarray(out, dtype=float))
+        # to 0.01 mm: a step's sides, a kink's neighbours and a round station coincide
+        out = np.unique(np.round(np.asarray(out, dtype=float), 5))
         keep = np.concatenate(([True], np.diff(out) > 0.05e-3))  # a step's two sides are one
         return tuple(float(v) for v in out[keep])
 
@@ -244,6 +245,14 @@ class ShopPart:
         xs = np.unique(np.concatenate((grid, corners, [0.0, L])))
         keep = np.concatenate(([True], np.diff(xs) > 1e-6))
         return tuple(float(v) for v in xs[keep])
+
+    def thickness_sides_m(self, x_m: float) -> tuple[float, ...]:
+        """The thickness at ``x_m``; at a step (a jump over a few micrometres) both sides,
+        left first, so a table can give the step as two rows at the same x."""
+        left, right = (float(v) for v in self.thickness_m(np.array([x_m - 3e-6, x_m + 3e-6])))
+        if abs(left - right) > 0.005e-3:
+            return (left, right)
+        return (float(self.thickness_m(x_m)),)
 
     def is_corner_m(self, x_m: float) -> bool:
         return any(abs(x_m - c) < 1e-6 for c in self.corners_m())
