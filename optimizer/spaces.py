@@ -37,9 +37,12 @@ __all__ = [
     "DesignField",
     "StringDensity",
     "TubeDesign",
+    "undercut_terms",
+    "undercut_thickness",
 ]
 
 _H = 1e-30  # complex step
+CUT_MIN_DEPTH = 1e-5  # m: shallower is no cut (the shop tables print 0.01 mm)
 
 
 @dataclass(frozen=True, eq=False)
@@ -279,15 +282,81 @@ class BarUndercut:
     def describe(self, u: np.ndarray) -> dict[str, float]:
         L = self.length(u)
         e = self.cut_edge(L)
-        x = np.linspace(0.0, L, 2001)
+        x = np.linspace(0.0, L, 4001)
         depth = self.depth_and_jacobian(u, x)[0]
+        cut = x[depth > CUT_MIN_DEPTH]  # where the cut really starts, not its allowed region
         return {
             "length_mm": L * 1e3,
-            "cut_from_mm": e * 1e3,
-            "cut_to_mm": (L - e) * 1e3,
+            "cut_starts_mm": float(cut[0]) * 1e3 if cut.size else e * 1e3,
+            "cut_ends_mm": float(cut[-1]) * 1e3 if cut.size else (L - e) * 1e3,
+            "shape_from_mm": e * 1e3,
             "max_depth_mm": float(depth.max()) * 1e3,
             "min_thickness_mm": float((self.blank_thickness - depth).min()) * 1e3,
         }
+
+
+@dataclass(frozen=True)
+class _LengthOnly:
+    """The one thing a fixed-length undercut reads of its blank (for depths and kinks)."""
+
+    length: float
+
+
+def undercut_terms(space: BarUndercut, u: np.ndarray) -> dict[str, object]:
+    """A bar design in its own terms, for writing: shape, symmetric, ``cut_edge`` (m from each
+    end where the shape's region begins), ``depths`` (m: B-spline control depths or step
+    depths, centre outward when symmetric; an arch's flat depth) and, for an arch, ``flat``
+    (its flat bottom as a share of the region's half-length). ``undercut_thickness`` of
+    these terms is the design's thickness at every x."""
+    u = np.asarray(u, dtype=float)
+    L = space.length(u)
+    D = space.depth_limit
+    terms: dict[str, object] = {
+        "shape": space.shape,
+        "symmetric": space.symmetric,
+        "cut_edge": space.cut_edge(L),
+    }
+    if space.shape == "arch":
+        terms["depths"] = (float(u[0]) * D,)
+        terms["flat"] = 0.9 * float(u[1])
+    else:
+        terms["depths"] = tuple(float(v) * D for v in u[: space.n_shape])
+    return terms
+
+
+def undercut_thickness(
+    length: float,
+    blank_thickness: float,
+    shape: str,
+    symmetric: bool,
+    cut_edge: float,
+    depths: tuple[float, ...],
+    flat: float | None = None,
+) -> DesignField:
+    """The thickness field ``blank - depth(x)`` of the terms ``undercut_terms`` gives (metres),
+    through the very shapes ``BarUndercut`` designs with, kinks included."""
+    n = len(depths)
+    deepest = max(max(depths), 1e-9)
+    space = BarUndercut(
+        blank=_LengthOnly(length),  # type: ignore[arg-type]
+        blank_thickness=blank_thickness,
+        shape=shape,  # type: ignore[arg-type]
+        control_points=(n if symmetric else n // 2) if shape == "spline" else 5,
+        steps=(n if symmetric else n // 2) if shape == "steps" else 3,
+        symmetric=symmetric,
+        max_depth=deepest,
+        min_thickness=0.0,
+        end_keep=cut_edge,
+    )
+    if shape == "arch":
+        u = np.array([depths[0] / deepest, (flat or 0.0) / 0.9])
+    else:
+        u = np.asarray(depths, dtype=float) / deepest
+
+    def thickness(x: np.ndarray) -> np.ndarray:
+        return blank_thickness - space.depth_and_jacobian(u, np.asarray(x, dtype=float))[0]
+
+    return DesignField(thickness, space.kinks(u))
 
 
 def _smooth_ramp(t: np.ndarray) -> np.ndarray:

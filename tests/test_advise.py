@@ -431,6 +431,7 @@ def test_json_shape(example_json):
         "warnings",
         "caution",
         "min_thickness_mm",
+        "a4_hz",
     }
     assert p["status"] == 1 and len(p["steps"]) == 3
     assert [r["partial"] for r in p["partials"]] == ["bending 1", "bending 2", "bending 3"]
@@ -448,10 +449,10 @@ def test_json_shape(example_json):
             "length_mm",
             "predicted",
             "serves",
-            "thinnest_after_mm",
+            "thinnest_in_window_after_mm",
         }
         assert 0 < s["depth_mm"] <= 0.5
-        assert s["thinnest_after_mm"] >= 5.0  # the file's [design] min_thickness
+        assert s["thinnest_in_window_after_mm"] >= 5.0  # the file's [design] min_thickness
         assert all(r["cents"] >= -tol for r, tol in zip(s["predicted"], TOL, strict=True))
     tm = p["tuning_map"]
     n = len(tm["positions_mm"])

@@ -59,9 +59,28 @@ def test_written_part_reproduces_the_result(demo):
     for row in payload["partials"]:
         f = found[(row["family"], row["order"])]
         assert abs(1200 * np.log2(f / row["beam_hz"])) < 0.01  # same beam model, same file
-    # stations at 1 mm spacing or finer
-    profile = payload["part"]["bar"]["profile"]
-    assert np.max(np.diff([p[0] for p in profile])) <= 1.0 + 1e-9
+    # the cut in the design's own terms, plus a station table to read it by
+    cut = payload["part"]["bar"]["undercut"]
+    assert cut["shape"] == "spline" and len(cut["depths"]) == 5
+    x = np.array([p[0] for p in cut["stations"]])
+    assert set(np.arange(0.0, 400.1, 5.0)) <= set(x) and len(x) < 100
+
+
+def test_written_part_file_is_compact_and_exact(demo):
+    _, out = demo
+    text = (out / "part.toml").read_text()
+    assert len(text.splitlines()) < 60  # it was 5,974 lines, one number a line
+    assert "profile = [" not in text
+    assert "certified by the 2D plane-stress side-profile model" in text
+    # the summary says where the cut starts, not only where it may
+    payload = json.loads((out / "result.json").read_text())
+    summary = payload["design"]["summary"]
+    assert summary["cut_starts_mm"] > summary["shape_from_mm"] + 20
+    values = payload["design"]["values"]
+    assert all(k.endswith("(mm)") for k in values)
+    assert max(values.values()) == pytest.approx(
+        max(payload["part"]["bar"]["undercut"]["depths"]), abs=1e-5
+    )
 
 
 def test_result_json_is_a_part_file_too(demo):

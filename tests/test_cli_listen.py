@@ -55,7 +55,7 @@ def test_json_from_every_format(tmp_path, rate, subtype, channels):
     result = listen(path, "--json")
     assert result.exit_code == 0, result.stderr
     out = json.loads(result.stdout)  # stdout holds the JSON and nothing else
-    assert set(out) == {"partials", "warnings"}  # no strike note for a bar
+    assert set(out) == {"a4_hz", "partials", "warnings"}  # no strike note for a bar
     assert out["warnings"] == []
     got = [p["frequency_hz"] for p in out["partials"]]
     assert len(got) == 3
@@ -63,9 +63,11 @@ def test_json_from_every_format(tmp_path, rate, subtype, channels):
         # 0.2 cent: project target; 16-bit quantisation noise is near -98 dBFS.
         assert abs(cents_off(g, f)) < 0.2
     first = out["partials"][0]
-    assert set(first) == {"frequency_hz", "level_db", "decay_s", "uncertainty_hz"}
+    assert set(first) == {"frequency_hz", "note", "cents", "level_db", "t60_s", "uncertainty_hz"}
     assert first["level_db"] == 0.0
-    assert first["decay_s"] == pytest.approx(BAR_TAU[0], rel=0.02)  # noise-free: CRB << 1 %
+    # one decay measure, T60 = tau ln(1000): the time to fall by 60 dB (20 log10 e^-t/tau)
+    t60 = BAR_TAU[0] * math.log(1000.0)
+    assert first["t60_s"] == pytest.approx(t60, rel=0.02)  # noise-free: CRB << 1 %
 
 
 def test_table_shows_notes_cents_and_ratios(tmp_path):

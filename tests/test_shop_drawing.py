@@ -57,12 +57,16 @@ def test_dimensions_and_tables(demo_svg):
         assert dim in t  # overall length, blank thickness, width
     for i, n in enumerate(part.node_positions_m, start=1):
         assert f"node {i}: {n * 1000:.1f} \u00b1 {part.node_tolerance_m * 1000:.1f}" in t
-    # Every station row: number, x, thickness to leave, depth of cut from the blank bottom.
+    # Every round station over the cut (5 mm fit) and every corner: x (a corner starred),
+    # thickness to leave, depth of cut from the blank bottom.
     T = part.blank_thickness_m * 1000
-    for k, (x, th) in enumerate(zip(part.stations_x_m, part.stations_thickness_m, strict=True)):
-        assert f"{x * 1000:.1f}" in t and f"{th * 1000:.2f}" in t
-        assert f"{T - th * 1000:.2f}" in t
-        assert f"{k + 1}" in t
+    corners = part.corners_m()
+    for x in part.round_stations_m(5.0, cut_only=True):
+        th = float(part.thickness_m(x)) * 1000
+        star = "*" if any(abs(x - c) < 1e-6 for c in corners) else ""
+        assert f"{x * 1000:.1f}{star}" in t and f"{th * 1000 / 1000:.2f}" in t
+        assert f"{T - th:.2f}" in t
+    assert any("every 5" in v for v in t)
     for _label, target, pred in part.partials:
         assert f"{pred:.2f}" in t
         assert f"{1200 * math.log2(pred / target):+.1f}" in t
@@ -71,14 +75,20 @@ def test_dimensions_and_tables(demo_svg):
     assert "thinnest: leave 6.00 at x = 190.0" in joined
 
 
-def test_many_stations_are_thinned_with_a_note():
-    x = np.linspace(0.0, 0.38, 200)
+def test_a_dense_profile_is_tabled_at_round_stations():
+    # a design's fine sampling (0.19 mm) is no table: rows are at round stations only
+    x = np.linspace(0.0, 0.38, 2001)
     t = 0.02 - 0.014 * np.sin(np.pi * x / 0.38) ** 2
     part = ShopPart("dense", 0.38, 0.05, 0.02, tuple(x), tuple(t))
     root = ET.fromstring(drawing_svg(part))
-    joined = " ".join(texts(root))
-    assert re.search(r"One station in \d+ listed", joined)
-    assert "200" in texts(root)  # the last station is always listed
+    values = texts(root)
+    assert re.search(r"Stations every (5|10) mm over", " ".join(values))
+    rows = [v for v in values if re.fullmatch(r"\d+\.\d\*?", v)]
+    corners = {f"{c * 1000:.1f}" for c in part.corners_m()}  # also labelled on the side view
+    round_rows = [v for v in rows if not v.endswith("*") and v not in corners]
+    assert round_rows and all(float(v) % 5 == 0 for v in round_rows)
+    assert "190.0*" in rows  # the thinnest point is a corner
+    assert len(rows) < 100
 
 
 def test_small_and_large_papers():

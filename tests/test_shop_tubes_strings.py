@@ -51,7 +51,8 @@ def test_tube_cut_list():
     assert r[0]["hole_tolerance_mm"] == "1.0" and r[0]["hole_diameter_mm"] == "4.0"
     assert float(r[0]["uniform_node_mm"]) == pytest.approx(0.22416 * 612.0, abs=0.05)
     # cents = 1200 log2(f / f_target): 524.00 vs 523.25 Hz is +2.48 cents.
-    assert r[0]["cents"] == "+2.5" and r[1]["cents"] == ""
+    assert r[0]["strike_cents_off"] == "+2.5" and r[1]["strike_cents_off"] == ""
+    assert r[0]["strike_note"] == "C5 +2.5"  # 524 Hz at A4 = 440: C5 (523.25 Hz) + 2.5 cents
     text = tube_cut_list_csv(TUBES, kerf_mm=2.0)
     assert "stock needed: 1166 mm" in text  # 612 + 550 + 2 x 2 mm kerf
     assert "CAUTIONS" in text
@@ -62,7 +63,9 @@ def test_tube_sheet_text():
     assert "cut length            612.0 mm" in text
     assert "centre 137.2 +- 1.0 mm from the top end" in text
     assert "Stock needed: 1166 mm" in text
-    assert "dust extraction" in text
+    # metal tubes get metal cautions, not wood dust
+    assert "deburr" in text and "tonewood" not in text
+    assert "strike note           524.00 Hz (C5 +2.5 cents)" in text
 
 
 @pytest.mark.parametrize(

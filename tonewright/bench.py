@@ -31,7 +31,7 @@ from tonewright.acoustics.preview import (
 from tonewright.audio import TapRecording, read_tap
 from tonewright.cli_support import parse_partials
 from tonewright.errors import InputError
-from tonewright.forward import Bar, Material, ModalResult, Part, String, constant, solve
+from tonewright.forward import Bar, Material, ModalResult, Part, String, Tube, constant, solve
 from tonewright.materials import MaterialSpec, MaterialTable, list_materials, load_material
 from tonewright.optimizer import (
     Advice,
@@ -233,6 +233,11 @@ def blank_from_part_file(path: Path, material: str | None) -> Blank:
     if part_file.bar is None:
         raise InputError(f"{path.name}: calibration needs a [bar] blank, got a [{part_file.kind}]")
     table = part_file.bar
+    if table.undercut is not None:
+        raise InputError(
+            f"{path.name}: bar.undercut is a cut bar; calibration needs the uncut blank "
+            "(drop [bar.undercut], or calibrate before cutting)"
+        )
     for name, stations, uniform in (
         ("profile", table.profile, table.thickness),
         ("width_profile", table.width_profile, table.width),
@@ -547,7 +552,8 @@ def _step_json(i: int, step: Step, goals) -> dict[str, Any]:
         "eased_edge_mm": _mm(min(cut.ramp_m, 0.25 * cut.width_m), 2),
         "serves": step.serves,
         "predicted": _rows(goals, step.predicted_hz, step.predicted_cents),
-        "thinnest_after_mm": _mm(step.thinnest_m),
+        # the thinnest point inside this step's windows once the step is cut
+        "thinnest_in_window_after_mm": _mm(step.thinnest_m),
     }
 
 
@@ -652,6 +658,7 @@ def advise_bar(request: AdviseRequest) -> AdviceReport:
     advice = advise(bar, goals, measured.f_hz, options, measured.sd_cents)
     warnings += list(advice.calibration.warnings)
     payload = advice_payload(advice, bar.material, r.title, h_min, warnings)
+    payload["a4_hz"] = r.part_file.target.a4_hz  # the reference the target's notes use
     return AdviceReport(advice, length_mm, tuple(warnings), MappingProxyType(payload))
 
 
@@ -660,6 +667,12 @@ def advise_bar(request: AdviseRequest) -> AdviceReport:
 
 MODE_COUNTS = {"bending": 12, "torsion": 6, "transverse": 24}
 DEFAULT_OFFSET_M = 5e-3  # players strike a little off the centre line (common practice)
+# chimes are struck on the rim of the top end (common practice, no source); heard from the
+# same distance off the other end
+TUBE_STRIKE_SHARE = 0.03
+# a string is struck or plucked near one end, about 1/8 of its length in (common practice, no
+# source): at its centre every even mode would be silent
+STRING_STRIKE_SHARE = 0.125
 _CONTACT_MS_RANGE = (0.05, 20.0)
 
 
@@ -760,8 +773,14 @@ def preview_sound(request: SoundRequest) -> SoundReport:
     if not (math.isfinite(eta) and 0.0 < eta < 1.0):
         raise InputError(f"--loss-factor {eta:g}: give a value between 0 and 1")
 
-    x_s = _position(r.strike_at, 0.5 * L, "--strike-at")
-    x_l = _position(r.listen_at, 0.4 * L, "--listen-at")
+    # a chime is struck near its top end, where every bending mode moves (at its centre the
+    # even modes have nodes, and with them the strike note's modes 4 and 6 would vanish)
+    tube = isinstance(part, Tube)
+    strike_share = (
+        TUBE_STRIKE_SHARE if tube else STRING_STRIKE_SHARE if isinstance(part, String) else 0.5
+    )
+    x_s = _position(r.strike_at, strike_share * L, "--strike-at")
+    x_l = _position(r.listen_at, (1 - TUBE_STRIKE_SHARE if tube else 0.4) * L, "--listen-at")
     if isinstance(part, Bar):
         quarter = 0.25 * float(part.width(np.array([x_s]))[0])
         y_s = _position(r.strike_offset, min(DEFAULT_OFFSET_M, quarter), "--strike-offset")

@@ -14,6 +14,8 @@ app = typer.Typer(
     no_args_is_help=True,
     add_completion=False,
     pretty_exceptions_enable=False,
+    # help texts are plain: "[target]" is a part file's table, not rich markup to eat
+    rich_markup_mode=None,
 )
 
 # Each module defines register(app). Order here is the order in --help.

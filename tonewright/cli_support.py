@@ -19,8 +19,10 @@ from threadpoolctl import threadpool_limits
 from tonewright.errors import InputError
 
 __all__ = [
+    "A4_RANGE_HZ",
     "atomic_write_bytes",
     "atomic_write_text",
+    "check_a4",
     "check_folder_possible",
     "fail",
     "guarded",
@@ -206,3 +208,14 @@ def parse_partials(text: str) -> np.ndarray:
     if not np.all(np.isfinite(values)) or np.any(values <= 0):
         raise InputError(f"--partials {text!r}: give one or more positive frequencies in Hz")
     return values
+
+
+A4_RANGE_HZ = (380.0, 500.0)  # the range a [target] table's a4_hz accepts
+
+
+def check_a4(a4_hz: float) -> float:
+    """``--a4`` within the range a part file's ``a4_hz`` accepts, else a one-line error."""
+    lo, hi = A4_RANGE_HZ
+    if not lo <= a4_hz <= hi:
+        raise InputError(f"--a4 {a4_hz:g}: give the pitch reference A4 in Hz, {lo:g} to {hi:g}")
+    return a4_hz

@@ -59,6 +59,7 @@ from tonewright.optimizer import (
     design,
 )
 from tonewright.optimizer.search import rechecked
+from tonewright.optimizer.spaces import undercut_terms, undercut_thickness
 from tonewright.partfile import DesignTable, PartFile, parse_part
 from tonewright.tuning import ResolvedTarget, resolve
 
@@ -96,6 +97,9 @@ UNWANTED_3D = "3D model: the beam's modes scaled to the 3D solve of this very de
 
 Progress = Callable[[str, int, float], None]
 
+# what the sheets and summaries call the model of each correction stage
+MODEL_NAMES = {"plane": "2D plane-stress side-profile model", "solid": "3D orthotropic solid model"}
+
 
 @dataclass(frozen=True)
 class HalfCriticalBand:
@@ -131,9 +135,9 @@ def _goals(target: ResolvedTarget) -> list[Goal]:
 def _space(part_file: PartFile, blank: Part, table: DesignTable):
     if isinstance(blank, Bar):
         t0 = part_file.bar.thickness
-        if part_file.bar.profile:
+        if part_file.bar.profile or part_file.bar.undercut:
             raise InputError(
-                "bar.profile: give the uncut blank for a design (drop profile); "
+                "bar.profile: give the uncut blank for a design (drop profile or undercut); "
                 "to tune a half-finished bar use 'tonewright advise'"
             )
         min_t = table.min_thickness if table.min_thickness is not None else 0.2 * t0
@@ -297,6 +301,89 @@ def station_profile(problem: Problem, u: np.ndarray, spacing: float = 1e-3) -> n
     return np.column_stack([x, h])
 
 
+def pitch_convention(problem: Problem) -> str:
+    """How the target's pitches were set, in one line: the A4 reference and temperament, and
+    any stretch or temperature shift (which moves every target by the same cents)."""
+    t = problem.target
+    spec = problem.part_file.target
+    words = f"notes in equal temperament at A4 = {t.a4_hz:g} Hz"
+    if abs(t.stretch_cents) > 1e-9:
+        words += f"; stretched {t.stretch_cents:+.2f} cents"
+    if spec is not None and spec.temperature_c is not None:
+        words += (
+            f"; aimed {t.temperature_cents:+.2f} cents from the nominal pitch so that it sounds "
+            f"on pitch at {spec.temperature_c:g} C (material data at 20 C)"
+        )
+    else:
+        words += "; material data and pitch at 20 C"
+    return words
+
+
+def variable_values(space, u: np.ndarray) -> tuple[tuple[str, float], ...]:
+    """The design variables in their own units, each name saying its unit (the scaled 0..1
+    values are what a restart needs; these are what a maker reads)."""
+    u = np.asarray(u, dtype=float)
+    names = space.names()
+    out = []
+    for name, v in zip(names, u, strict=True):
+        if name == "length":
+            out.append(("length (mm)", space.length(u) * 1e3))
+        elif isinstance(space, BarUndercut):
+            if name == "flat half-width":
+                out.append(("flat half-width (share of the half cut)", 0.9 * float(v)))
+            else:
+                out.append((f"{name} (mm)", float(v) * space.depth_limit * 1e3))
+        elif isinstance(space, TubeDesign):
+            lo, hi = space.wall_range
+            out.append((f"{name} (mm)", (lo + float(v) * (hi - lo)) * 1e3))
+        elif isinstance(space, StringDensity):
+            lo, hi = space.density_range
+            out.append((f"{name} (g/m)", (lo + float(v) * (hi - lo)) * 1e3))
+        else:  # pragma: no cover - every space is named above
+            out.append((f"{name} (share of its range)", float(v)))
+    return tuple(out)
+
+
+READING_STATIONS_MM = 5.0  # the station table written beside a designed undercut
+
+
+def undercut_table(problem: Problem, u: np.ndarray) -> dict[str, Any]:
+    """A bar design as ``[bar.undercut]`` (mm): its own terms, which the part file evaluates
+    exactly, and a table of stations every ``READING_STATIONS_MM`` (plus the cut's corners)
+    to read it by, rounded to the 0.01 mm the shop tables print."""
+    space = problem.space
+    terms = undercut_terms(space, u)
+    L = space.length(u)
+    table: dict[str, Any] = {
+        "shape": terms["shape"],
+        "symmetric": terms["symmetric"],
+        "cut_from": round(float(terms["cut_edge"]) * 1e3, 6),
+        "depths": [round(float(d) * 1e3, 6) for d in terms["depths"]],
+    }
+    if "flat" in terms:
+        table["flat"] = round(float(terms["flat"]), 9)
+    x = np.arange(0.0, L * 1e3 + 1e-9, READING_STATIONS_MM) * 1e-3
+    kinks = space.kinks(u)
+    x = np.unique(np.concatenate([x, kinks, [L]]))
+    x = x[np.concatenate(([True], np.diff(x) > 1e-7))]
+    # the written depths: the reading table agrees with what the file gives to its rounding
+    field = undercut_thickness(
+        L,
+        space.blank_thickness,
+        table["shape"],
+        table["symmetric"],
+        table["cut_from"] * 1e-3,
+        tuple(d * 1e-3 for d in table["depths"]),
+        table.get("flat"),
+    )
+    L_mm = round(L * 1e3, 6)  # the length as written; a free length is no round number
+    x_mm = np.round(x * 1e3, 2)
+    x_mm = np.unique(np.concatenate([x_mm[x_mm < L_mm], [L_mm]]))
+    h = field(x_mm * 1e-3) * 1e3
+    table["stations"] = [[float(a), round(float(b), 2)] for a, b in zip(x_mm, h, strict=True)]
+    return table
+
+
 def certify(problem: Problem, part: Part):
     """An independent, accuracy-controlled solve (0.01 cent) of the part as written to file,
     with the families the goals and the clearance need."""
@@ -339,12 +426,11 @@ def part_table(problem: Problem, u: np.ndarray) -> dict[str, Any]:
     space = problem.space
     L = space.length(u)
     if pf.bar is not None:
-        stations = station_profile(problem, u)
         bar: dict[str, Any] = {
             "length": round(L * 1e3, 6),
             "width": round(pf.bar.width * 1e3, 6),
             "thickness": round(pf.bar.thickness * 1e3, 6),
-            "profile": [[round(x * 1e3, 6), round(h * 1e3, 6)] for x, h in stations],
+            "undercut": undercut_table(problem, u),
         }
         if pf.bar.width_profile:
             bar["width_profile"] = [[x * 1e3, w * 1e3] for x, w in pf.bar.width_profile]
@@ -376,6 +462,8 @@ def part_table(problem: Problem, u: np.ndarray) -> dict[str, Any]:
         x = np.linspace(0.0, L, int(np.ceil(L / 1e-3)) + 1)
         mu = space.density_and_jacobian(u, x)[0]
         string: dict[str, Any] = {"length": round(L * 1e3, 6), "tension": s.tension}
+        if s.diameter is not None:  # the core wire the winding goes on
+            string["diameter"] = round(s.diameter * 1e3, 6)
         string["density_profile"] = [
             [round(a * 1e3, 6), float(f"{b:.9g}")] for a, b in zip(x, mu, strict=True)
         ]
@@ -413,7 +501,11 @@ class CertifiedPartial:
 
     @property
     def label(self) -> str:
-        return "strike note" if self.family == "strike" else f"{self.family} {self.order}"
+        if self.family == "strike":
+            return "strike note"
+        if self.family == "transverse":  # a string's own word: its modes, not a beam's
+            return f"mode {self.order}"
+        return f"{self.family} {self.order}"
 
 
 @dataclass(frozen=True)
@@ -428,6 +520,7 @@ class DesignFigures:
     holes: tuple[tuple[float, float, float], ...]  # (x, diameter, height) mm
     shape: tuple[float, ...] | None  # tubes and strings: the first mode shape
     nodes_mm: tuple[float, ...]
+    density_g_m: tuple[float, ...] | None = None  # strings: the designed linear density
 
 
 @dataclass(frozen=True, eq=False)
@@ -456,6 +549,8 @@ class DesignReport:
     unwanted_model: str
     corrections: tuple[tuple[str, tuple[Any, ...]], ...]  # (model label, CorrectionSteps)
     figures: DesignFigures
+    values: tuple[tuple[str, float], ...] = ()  # the variables in their units (name with unit)
+    pitch_convention: str = ""  # A4, temperament, and any stretch or temperature shift
 
     @property
     def converged(self) -> bool:
@@ -481,8 +576,12 @@ def _unwanted_model(outcome: Outcome) -> str:
 def _figures(problem: Problem, part: Part, modal, rows: list[dict[str, Any]]) -> DesignFigures:
     first = "bending" if modal.family("bending") else "transverse"
     nodes = tuple(x * 1e3 for x in modal.family(first)[0].nodes_m)
-    top = 1.35 * max(r["achieved_hz"] for r in rows)
+    used = [r["achieved_hz"] for r in rows]
+    for k, _ in STRIKE_MODES if any(r["family"] == "strike" for r in rows) else ():
+        used.append(modal.frequency("bending", k))  # the strike note's own modes
+    top = 1.35 * max(used)
     modes = tuple((m.family, m.order, m.frequency_hz) for m in modal.modes if m.frequency_hz <= top)
+    modes += tuple(("strike", 1, r["achieved_hz"]) for r in rows if r["family"] == "strike")
     targets = tuple(
         (
             f"{r['family']} {r['order']}" if r["family"] != "strike" else "strike",
@@ -507,8 +606,19 @@ def _figures(problem: Problem, part: Part, modal, rows: list[dict[str, Any]]) ->
     else:
         holes, thickness, blank = (), None, None
         shape = tuple(float(v) for v in modal.modes[0].shape(x))
+    density = None
+    if isinstance(part, String):
+        density = tuple(float(v) * 1e3 for v in part.linear_density(x))
     return DesignFigures(
-        modes, targets, tuple(float(v) for v in x * 1e3), thickness, blank, holes, shape, nodes
+        modes,
+        targets,
+        tuple(float(v) for v in x * 1e3),
+        thickness,
+        blank,
+        holes,
+        shape,
+        nodes,
+        density,
     )
 
 
@@ -535,7 +645,12 @@ def design_report(
     part = written.to_part(problem.base_dir)
     modal = certify(problem, part)
     rows = achieved(problem, modal)
-    certifier = f"beam model ({problem.part_file.model.theory})"
+    solver = (
+        "string model"
+        if isinstance(part, String)
+        else (f"{problem.part_file.model.theory.capitalize()} beam model")
+    )
+    certifier = solver
     for r in rows:
         r["beam_hz"] = r["achieved_hz"]
         r["certified_by"] = certifier
@@ -561,7 +676,7 @@ def design_report(
         )
         for r in rows
     )
-    by = outcome.stages[-1][0].label if outcome.stages else certifier
+    by = MODEL_NAMES.get(outcome.stages[-1][0].model, "") if outcome.stages else certifier
     pf = problem.part_file
     return DesignReport(
         title=pf.title or "",
@@ -571,8 +686,14 @@ def design_report(
         fidelity=fidelity,
         partials=partials,
         part=table,
-        certified_by=f"{by}; beam model converged to {modal.max_error_cents:.2g} cent",
+        certified_by=(
+            f"{by}, corrections on the {solver} (converged to {modal.max_error_cents:.2g} cent)"
+            if by != solver
+            else f"{solver}, converged to {modal.max_error_cents:.2g} cent"
+        ),
         variables=tuple(zip(names, map(float, result.u), strict=True)),
+        values=variable_values(problem.space, result.u),
+        pitch_convention=pitch_convention(problem),
         summary=dict(problem.space.describe(result.u)),
         seed=problem.table.seed,
         solves=result.solves,

@@ -24,12 +24,21 @@ import tomli_w
 from tonewright.cli_support import atomic_write_bytes, check_folder_possible, prepare_out_dir
 from tonewright.design import DesignReport
 from tonewright.optimizer import STATUS_MESSAGES
-from tonewright.plots import figure_bytes, profile_figure, shape_figure, spectrum_figure
+from tonewright.plots import (
+    density_figure,
+    figure_bytes,
+    profile_figure,
+    shape_figure,
+    spectrum_figure,
+)
 
 __all__ = [
     "CAUTION",
     "OUTPUTS",
+    "STRING_CAUTION",
+    "TUBE_CAUTION",
     "WRITERS",
+    "caution_of",
     "check_out_dir",
     "design_files",
     "part_toml",
@@ -49,6 +58,24 @@ CAUTION = (
     "approach the target in small steps. Use guards and dust extraction (many tonewood dusts "
     "are sensitisers), eye and hearing protection, and follow your machine's manual."
 )
+TUBE_CAUTION = (
+    "Before cutting: material cannot be put back. Cut the tube a little long, tap, and "
+    "shorten it in small steps. Clamp it, deburr the cut ends (sharp), use extraction for "
+    "metal dust, eye and hearing protection, and follow your machine's manual."
+)
+STRING_CAUTION = (
+    "Before winding: wind no more than the schedule gives and weigh as you go. A string under "
+    "tension stores energy: wear eye protection and never lean over it while tensioning."
+)
+
+
+def caution_of(report: DesignReport) -> str:
+    """The caution for what the design makes: a bar, a tube or a string."""
+    if "tube" in report.part:
+        return TUBE_CAUTION
+    if "string" in report.part:
+        return STRING_CAUTION
+    return CAUTION
 
 
 def _json_ready(obj: Any) -> Any:
@@ -103,12 +130,15 @@ def result_payload(report: DesignReport) -> dict[str, Any]:
         "unwanted_modes_model": report.unwanted_model,
         "mode1_nodes_mm": list(report.nodes_mm),
         "design": {
+            # each variable as a share (0 to 1) of its range: what a restart starts from
             "variables": dict(report.variables),
+            "values": dict(report.values),
             "summary": _json_ready(report.summary),
             "seed": report.seed,
             "forward_solves": report.solves,
         },
         "certified_by": report.certified_by,
+        "pitch_convention": report.pitch_convention,
         "fidelity": report.fidelity,
         "corrections": [
             {
@@ -124,7 +154,7 @@ def result_payload(report: DesignReport) -> dict[str, Any]:
             }
             for label, steps in report.corrections
         ],
-        "caution": CAUTION,
+        "caution": caution_of(report),
     }
 
 
@@ -133,14 +163,81 @@ def result_json(report: DesignReport) -> dict[str, bytes]:
     return {"result.json": text.encode("utf-8")}
 
 
+_PAIRS_PER_LINE = 6
+
+
+def _toml_value(value: Any) -> str:
+    """One TOML value, arrays inline (rows of pairs wrapped a few to a line)."""
+    if isinstance(value, Mapping):
+        return (
+            "{ " + ", ".join(f"{_toml_key(k)} = {_toml_value(v)}" for k, v in value.items()) + " }"
+        )
+    if isinstance(value, list | tuple):
+        if value and all(isinstance(v, list | tuple) for v in value):
+            items = [_toml_value(v) for v in value]
+            rows = [
+                "    " + ", ".join(items[k : k + _PAIRS_PER_LINE]) + ","
+                for k in range(0, len(items), _PAIRS_PER_LINE)
+            ]
+            return "[\n" + "\n".join(rows) + "\n]"
+        return "[" + ", ".join(_toml_value(v) for v in value) + "]"
+    return tomli_w.dumps({"v": value}).split("=", 1)[1].strip()
+
+
+def _toml_key(key: str) -> str:
+    return tomli_w.dumps({key: 0}).split("=", 1)[0].strip()
+
+
+def _is_tables(value: Any) -> bool:
+    return (
+        isinstance(value, list | tuple)
+        and bool(value)
+        and all(isinstance(v, Mapping) for v in value)
+    )
+
+
+def compact_toml(table: Mapping[str, Any], prefix: str = "") -> str:
+    """TOML for a part table that a maker can read: scalars and short arrays on one line,
+    station tables a few pairs to a line, sub-tables as sections (``tomllib`` reads it back
+    to the same values)."""
+    lines = [
+        f"{_toml_key(k)} = {_toml_value(v)}"
+        for k, v in table.items()
+        if not isinstance(v, Mapping) and not _is_tables(v)
+    ]
+    for k, v in table.items():
+        name = f"{prefix}{_toml_key(k)}"
+        if isinstance(v, Mapping):
+            lines += ["", f"[{name}]", compact_toml(v, f"{name}.").strip("\n")]
+        elif _is_tables(v):
+            for item in v:
+                lines += ["", f"[[{name}]]", compact_toml(item, f"{name}.").strip("\n")]
+    return "\n".join(lines).strip("\n") + "\n"
+
+
+_KIND_NOTES = {
+    "bar": "# A designed bar's cut is [bar.undercut]: the design's own shape, which tonewright\n"
+    "# evaluates exactly; its stations (every 5 mm and at the cut's corners, thickness to\n"
+    "# leave from the top face) are for reading and are checked against it.\n",
+    "string": "# density_profile: linear density in kg/m (core plus winding) at 1 mm stations;\n"
+    "# diameter is the core wire; 'tonewright shop' turns it into a winding schedule.\n",
+    "tube": "# The tube's length is the design; hang it at the node 'tonewright shop' gives.\n",
+}
+
+
 def part_toml(report: DesignReport) -> dict[str, bytes]:
     state = "meets its target" if report.converged else "DOES NOT meet its target"
     header = (
         f"# Designed by tonewright: {state} ({report.message}).\n"
-        f"# {report.certified_by}.\n"
-        "# Lengths in mm. " + CAUTION + "\n\n"
+        f"# Partials certified by the {report.certified_by}.\n"
+        f"# Target: {report.pitch_convention}.\n"
+        "# Lengths in mm.\n"
+        + _KIND_NOTES.get(next((k for k in _KIND_NOTES if k in report.part), ""), "")
+        + "# "
+        + caution_of(report)
+        + "\n\n"
     )
-    return {"part.toml": (header + tomli_w.dumps(_json_ready(report.part))).encode("utf-8")}
+    return {"part.toml": (header + compact_toml(_json_ready(report.part))).encode("utf-8")}
 
 
 def spectrum_files(report: DesignReport) -> dict[str, bytes]:
@@ -161,6 +258,8 @@ def profile_files(report: DesignReport) -> dict[str, bytes]:
             return profile_figure(
                 x, np.asarray(fig.thickness_mm), fig.blank_mm, fig.nodes_mm, fig.holes
             )
+        if fig.density_g_m is not None:
+            return density_figure(x, np.asarray(fig.density_g_m), fig.nodes_mm)
         return shape_figure(x, np.asarray(fig.shape), fig.nodes_mm)
 
     return {f"profile.{fmt}": figure_bytes(make(), fmt) for fmt in ("png", "svg")}
@@ -227,15 +326,35 @@ def summary_lines(report: DesignReport, folder: Path | None = None) -> list[str]
             f"{p.tolerance_cents:>11g}  {p.certified_by}"
         )
     lines += unwanted_lines(report)
-    lines.append(
-        "  " + ", ".join(f"{k.replace('_', ' ')} {v:.2f}" for k, v in report.summary.items())
-    )
+    lines.append("  " + summary_text(report.summary))
     if report.nodes_mm:
         lines.append("  mode-1 nodes (mm): " + ", ".join(f"{x:.1f}" for x in report.nodes_mm))
     verdict = "meets the target" if report.converged else "target out of reach"
     lines.append(f"{verdict}: {report.message}")
     lines += tail_lines(report, folder)
     return lines
+
+
+# summary key -> (words, unit, factor from the key's unit, format)
+SUMMARY_TERMS: dict[str, tuple[str, str, float, str]] = {
+    "length_mm": ("length", "mm", 1.0, ".1f"),
+    "cut_starts_mm": ("cut starts at", "mm", 1.0, ".1f"),
+    "cut_ends_mm": ("ends at", "mm", 1.0, ".1f"),
+    "shape_from_mm": ("(allowed from", "mm of each end)", 1.0, ".1f"),
+    "max_depth_mm": ("deepest cut", "mm", 1.0, ".2f"),
+    "min_thickness_mm": ("thinnest", "mm", 1.0, ".2f"),
+    "min_density_kg_m": ("linear density from", "g/m", 1e3, ".4g"),
+    "max_density_kg_m": ("to", "g/m", 1e3, ".4g"),
+}
+
+
+def summary_text(summary: Mapping[str, float]) -> str:
+    """The design's summary in words and units ("length 400.0 mm, cut starts at 70.5 mm")."""
+    parts = []
+    for key, value in summary.items():
+        words, unit, factor, fmt = SUMMARY_TERMS.get(key, (key.replace("_", " "), "", 1.0, ".4g"))
+        parts.append(f"{words} {value * factor:{fmt}} {unit}".rstrip())
+    return ", ".join(parts).replace(", (allowed", " (allowed").replace(", to ", " to ")
 
 
 def unwanted_lines(report: DesignReport) -> list[str]:
@@ -256,9 +375,15 @@ def unwanted_lines(report: DesignReport) -> list[str]:
 def tail_lines(report: DesignReport, folder: Path | None) -> list[str]:
     lines = []
     if report.binding:
-        lines.append("  limits that bind: " + "; ".join(report.binding))
-    lines.append(f"  {report.certified_by}; {report.solves} forward solves")
+        # a design that met its target only touches these limits; one that missed is held by them
+        words = "at the edge of the design space" if report.converged else "limits that bind"
+        lines.append(f"  {words}: " + "; ".join(report.binding))
+    lines.append(
+        f"  partials certified by the {report.certified_by}; {report.solves} forward solves"
+    )
+    if report.pitch_convention:
+        lines.append(f"  target: {report.pitch_convention}")
     if folder is not None:
         lines.append(f"  wrote {folder}/part.toml, result.json, profile.png/svg, spectrum.png/svg")
-    lines.append(f"  {CAUTION}")
+    lines.append(f"  {caution_of(report)}")
     return lines

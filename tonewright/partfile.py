@@ -12,6 +12,7 @@ Every problem is reported as ``field: what is wrong (got value)`` through InputE
     thickness = 22
     profile = [[0, 22], [120, 22], [160, 7], [240, 7], [280, 22], [400, 22]]
     holes = [{ at = 90, diameter = 5 }]
+    [bar.undercut]         # or a designed cut in its own terms (UndercutTable), not both
     [[support]]
     kind = "cord"          # clamp | pin | cord | spring | mass | touch
     at = 90
@@ -55,6 +56,7 @@ from tonewright.forward.geometry import (
     hole_centre_height,
 )
 from tonewright.materials import MaterialEntry, MaterialSpec, material_value, resolve_material
+from tonewright.optimizer.spaces import undercut_thickness
 from tonewright.tuning import TargetSpec
 from tonewright.units import Length, PositionLength, parse_length, parse_position
 
@@ -67,6 +69,7 @@ __all__ = [
     "StringTable",
     "SupportTable",
     "TubeTable",
+    "UndercutTable",
     "load_part",
     "parse_part",
 ]
@@ -181,12 +184,66 @@ class HoleTable(BaseModel):
     height: PositionLength | None = None  # centre above the bottom face; default mid-thickness
 
 
+# A written station table may differ from its undercut by the rounding of its two decimals.
+STATION_SLACK = 0.0051e-3
+
+
+class UndercutTable(BaseModel):
+    """``[bar.undercut]``: a designed cut in the design's own terms, as ``design`` writes it
+    (``tonewright.optimizer.spaces.undercut_thickness`` evaluates it exactly).
+
+    ``shape`` spline | arch | steps; ``symmetric``; ``cut_from``: where the shape's region
+    begins, from each end (mm; the cut itself may start further in, where its depth leaves
+    zero); ``depths`` (mm): a spline's control depths (B-spline coefficients, the centre's
+    first when symmetric), the depth of each step, or an arch's flat depth; ``flat``: an
+    arch's flat bottom as a share of the region's half-length; ``stations``: optional
+    ``[[x, thickness to leave], ...]`` for reading, checked against the shape."""
+
+    model_config = _FROZEN
+    shape: Literal["spline", "arch", "steps"]
+    symmetric: bool = True
+    cut_from: PositionLength
+    depths: tuple[PositionLength, ...] = Field(min_length=1, max_length=24)
+    flat: float | None = Field(default=None, ge=0.0, lt=0.9)
+    stations: tuple[tuple[float, float], ...] | None = None
+
+    @field_validator("stations", mode="before")
+    @classmethod
+    def _stations(cls, v: Any) -> Any:
+        return None if v is None else _length_stations(v, "undercut.stations")
+
+    @model_validator(mode="after")
+    def _terms(self) -> UndercutTable:
+        n = len(self.depths)
+        if self.shape == "arch" and (n != 1 or self.flat is None):
+            raise ValueError("an arch undercut needs one depth and flat (a share, 0 to 0.9)")
+        if self.shape != "arch" and self.flat is not None:
+            raise ValueError(f"flat is for an arch; a {self.shape} undercut has none")
+        if self.shape == "spline" and n < (2 if self.symmetric else 4):
+            raise ValueError("a spline undercut needs at least 2 depths (4 when asymmetric)")
+        if not self.symmetric and self.shape != "arch" and n % 2:
+            raise ValueError(f"an asymmetric {self.shape} undercut needs an even number of depths")
+        return self
+
+    def thickness_field(self, length: float, thickness: float):
+        return undercut_thickness(
+            length,
+            thickness,
+            self.shape,
+            self.symmetric,
+            self.cut_from,
+            tuple(self.depths),
+            self.flat,
+        )
+
+
 class BarTable(BaseModel):
     model_config = _FROZEN
     length: PartLength
     width: SectionLength
     thickness: SectionLength
     profile: tuple[tuple[float, float], ...] | None = None
+    undercut: UndercutTable | None = None
     width_profile: tuple[tuple[float, float], ...] | None = None
     holes: tuple[HoleTable, ...] = ()
 
@@ -208,6 +265,8 @@ class BarTable(BaseModel):
         _check_size("width_profile width", min(widths))
         for name in ("profile", "width_profile"):
             _check_within(getattr(self, name) or (), self.length, name)
+        if self.undercut is not None:
+            self._check_undercut(self.undercut)
         if self.profile:
             too_thick = [y for _, y in self.profile if y > self.thickness * (1 + 1e-9)]
             if too_thick:
@@ -231,7 +290,36 @@ class BarTable(BaseModel):
             raise ValueError("holes overlap: move them apart")
         return self
 
-    def thickness_field(self) -> PiecewiseLinear:
+    def _check_undercut(self, cut: UndercutTable) -> None:
+        if self.profile:
+            raise ValueError("give profile or undercut, not both")
+        if cut.cut_from >= 0.5 * self.length:
+            raise ValueError(
+                f"undercut.cut_from {cut.cut_from * 1e3:g} mm must be under half the length "
+                f"({0.5 * self.length * 1e3:g} mm)"
+            )
+        room = self.thickness - SIZE_LIMITS["section"][0]
+        if max(cut.depths) > room:
+            raise ValueError(
+                f"undercut.depths {max(cut.depths) * 1e3:g} mm leaves under "
+                f"{SIZE_LIMITS['section'][0] * 1e3:g} mm of the {self.thickness * 1e3:g} mm blank"
+            )
+        if cut.stations:
+            _check_within(cut.stations, self.length, "undercut.stations")
+            x, t = np.array(cut.stations).T
+            off = np.abs(cut.thickness_field(self.length, self.thickness)(x) - t)
+            if off.max() > STATION_SLACK:
+                i = int(np.argmax(off))
+                raise ValueError(
+                    f"undercut.stations: {t[i] * 1e3:g} mm at x = {x[i] * 1e3:g} mm disagrees "
+                    f"with the shape by {off[i] * 1e3:.3f} mm; the shape is what is cut: fix or "
+                    "drop the stations"
+                )
+
+    def thickness_field(self):
+        """The thickness along the bar: the undercut's, the profile's, or uniform."""
+        if self.undercut is not None:
+            return self.undercut.thickness_field(self.length, self.thickness)
         return _field(self.profile, self.thickness)
 
     def width_field(self) -> PiecewiseLinear:

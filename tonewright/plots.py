@@ -16,7 +16,14 @@ matplotlib.use("Agg")
 import matplotlib.pyplot as plt
 import numpy as np
 
-__all__ = ["FAMILY_STYLE", "figure_bytes", "profile_figure", "shape_figure", "spectrum_figure"]
+__all__ = [
+    "FAMILY_STYLE",
+    "density_figure",
+    "figure_bytes",
+    "profile_figure",
+    "shape_figure",
+    "spectrum_figure",
+]
 
 # this tool's own palette: partial families by hue, targets in black
 FAMILY_STYLE = {
@@ -89,6 +96,10 @@ def spectrum_figure(
     fig, ax = plt.subplots(figsize=(9, 3.2))
     seen = set()
     for family, order, f in modes:
+        if family == "strike":  # the pitch a chime is heard at, fitted to bending 4-6
+            ax.vlines(f, 0, 1.3, color="black", linewidth=2.4, label="strike note (model)")
+            ax.annotate("strike", (f, 1.3), textcoords="offset points", xytext=(2, 2), fontsize=7)
+            continue
         color = FAMILY_STYLE.get(family, "#555555")
         label = family if family not in seen else None
         seen.add(family)
@@ -107,15 +118,36 @@ def spectrum_figure(
             f, color="black", linestyle=":", linewidth=1.0, label="target" if i == 0 else None
         )
         ax.annotate(label, (f, 1.12), fontsize=7, rotation=90, va="bottom", ha="right")
-    ax.set_xscale("log")
-    ax.xaxis.set_major_formatter(matplotlib.ticker.FuncFormatter(lambda v, _: f"{v:g}"))
-    ax.xaxis.set_minor_formatter(matplotlib.ticker.NullFormatter())
+    freqs = [f for *_, f in modes] + [f for _, f, _ in targets]
+    if max(freqs) / min(freqs) > 2.5:  # a log axis labelled at 1-2-5 steps
+        ax.set_xscale("log")
+        ax.xaxis.set_major_locator(matplotlib.ticker.LogLocator(base=10, subs=(1.0, 2.0, 5.0)))
+        ax.xaxis.set_major_formatter(matplotlib.ticker.FuncFormatter(lambda v, _: f"{v:g}"))
+        ax.xaxis.set_minor_formatter(matplotlib.ticker.NullFormatter())
+    lo, hi = min(freqs), max(freqs)
+    pad = (hi / lo) ** 0.06 if hi > lo else 1.1
+    ax.set_xlim(lo / pad, hi * pad)
     ax.set_ylim(0, 1.6)
     ax.set_yticks([])
     ax.set_xlabel("frequency (Hz)")
     ax.set_title(title or "Partials against targets")
     ax.legend(loc="upper left", fontsize=8, frameon=False, ncol=5)
     ax.grid(alpha=0.25, which="both", axis="x")
+    fig.tight_layout()
+    return fig
+
+
+def density_figure(x_mm: np.ndarray, density_g_m: np.ndarray, nodes_mm: Sequence[float] = ()):
+    """A string's designed linear density along its length (g/m), with mode-1 nodes."""
+    fig, ax = plt.subplots(figsize=(9, 3.2))
+    ax.fill_between(x_mm, 0.0, density_g_m, color="#d9c3a5", edgecolor="#5b4630", linewidth=1.0)
+    for xn in nodes_mm:
+        ax.axvline(xn, color="#1b6f8a", linestyle="--", linewidth=0.8)
+    ax.set_xlabel("position along the string (mm)")
+    ax.set_ylabel("linear density (g/m)")
+    ax.set_ylim(0.0, 1.15 * float(np.max(density_g_m)))
+    ax.set_title("Designed linear density (core plus winding)")
+    ax.grid(alpha=0.25)
     fig.tight_layout()
     return fig
 

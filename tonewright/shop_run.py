@@ -15,10 +15,12 @@ from pathlib import Path
 
 import numpy as np
 
+from tonewright.acoustics.pitch import strike_note_hz
 from tonewright.errors import InputError
-from tonewright.forward import Bar, String, families_of, solve
+from tonewright.forward import Bar, String, Tube, families_of, solve
 from tonewright.partfile import PartFile, load_part
 from tonewright.shop import ShopPart, TubeCut, WoundString
+from tonewright.shop.part import MISSED_MARK
 
 __all__ = [
     "MISSED_MARK",
@@ -34,9 +36,6 @@ __all__ = [
 
 STEEL_DENSITY = 7850.0  # kg/m^3, the string's core (common practice, no source)
 COPPER_DENSITY = 8960.0  # kg/m^3, the winding (common practice, no source)
-WRAP_DIAMETER = 0.3e-3  # m
-
-MISSED_MARK = "MISSED DESIGN"
 
 
 @dataclass(frozen=True)
@@ -66,6 +65,15 @@ def design_verdict(file: Path) -> DesignVerdict | None:
     return DesignVerdict(bool(payload["converged"]), str(payload.get("message", "")))
 
 
+def certifier_of(file: Path) -> str | None:
+    """The model a result.json says certified its partials (None for a part file)."""
+    if Path(file).suffix.lower() != ".json":
+        return None
+    payload = json.loads(Path(file).read_text(encoding="utf-8"))
+    by = payload.get("certified_by")
+    return str(by) if by else None
+
+
 def _partials_of(file: Path, modal) -> tuple[tuple[str, float | None, float], ...]:
     """Target and predicted partials: from a result.json when given, else the model's."""
     if file.suffix.lower() == ".json":
@@ -82,14 +90,21 @@ def shop_part(
     base: Path | None,
     name: str,
     partials: Sequence[tuple[str, float | None, float]] | None = None,
+    certified_by: str | None = None,
 ) -> tuple[object, ShopPart | None, object]:
     """The forward part, its ShopPart (bars; None otherwise) and its certified solve.
     ``partials``: (label, target Hz or None, predicted Hz); the model's first three when
-    None."""
+    None. ``certified_by``: the model those partials come from (a design's certifier); the
+    beam solve made here when None."""
     part = part_file.to_part(base)
     counts = dict.fromkeys(families_of(part), 0)
-    counts["transverse" if isinstance(part, String) else "bending"] = 3
+    # a tube's pitch is its strike note, fitted to bending modes 4-6
+    counts["transverse" if isinstance(part, String) else "bending"] = (
+        6 if isinstance(part, Tube) else 3
+    )
     modal = solve(part, counts, tol_cents=0.01, theory=part_file.model.theory)
+    if certified_by is None:
+        certified_by = f"{part_file.model.theory.capitalize()} beam model, {modal.message}"
     if not isinstance(part, Bar):
         return part, None, modal
     if partials is None:
@@ -99,7 +114,9 @@ def shop_part(
     if bar.width_profile:
         raise InputError("bar.width_profile: shop outputs draw bars of constant width only")
     x = np.linspace(0.0, bar.length, 2)
-    if bar.profile:
+    if bar.undercut is not None:  # the outline at every 0.25 mm and both sides of each kink
+        x = _outline_stations(part.thickness, bar.length)
+    elif bar.profile:
         x = np.array([p[0] for p in bar.profile])
         if x[0] > 0:
             x = np.concatenate([[0.0], x])
@@ -130,9 +147,26 @@ def shop_part(
         node_tolerance_m=0.5e-3,
         material_name=spec.name if spec else "",
         partials=tuple(partials),
-        notes=(f"Model: {part_file.model.theory} beam, {modal.message}.",),
+        notes=(f"Partials (model Hz) from the {certified_by}.",),
+        certified_by=certified_by,
+        caution_kind="wood" if spec is None or spec.kind == "wood" else "metal",
     )
     return part, shop, modal
+
+
+OUTLINE_SPACING = 0.25e-3  # m: an undercut's outline is drawn and milled through these
+
+
+def _outline_stations(field, length: float) -> np.ndarray:
+    """Stations for the outline of a designed cut: every ``OUTLINE_SPACING`` and just either
+    side of every kink (a step's two sides), so straight lines between them follow it to well
+    under the 0.01 mm the tables print (|h''| dx^2 / 8 for a smooth cut)."""
+    n = int(np.ceil(length / OUTLINE_SPACING))
+    kinks = np.asarray(field.breakpoints, dtype=float)
+    eps = 1e-6
+    x = np.concatenate([np.linspace(0.0, length, n + 1), kinks - eps, kinks + eps])
+    x = np.unique(x[(x >= 0.0) & (x <= length)])
+    return x[np.concatenate(([True], np.diff(x) > 0.5 * eps))]
 
 
 def load_shop_source(file: Path) -> ShopSource:
@@ -143,7 +177,7 @@ def load_shop_source(file: Path) -> ShopSource:
     modal_partials = None
     if file.suffix.lower() == ".json":
         modal_partials = _partials_of(file, None)
-    part, shop, modal = shop_part(part_file, base, file.stem, modal_partials)
+    part, shop, modal = shop_part(part_file, base, file.stem, modal_partials, certifier_of(file))
     return ShopSource(part_file, part, modal, shop, verdict)
 
 
@@ -153,13 +187,33 @@ def marked_missed(shop: ShopPart, message: str) -> ShopPart:
         shop,
         title=f"{shop.title} - {MISSED_MARK}",
         notes=(f"{MISSED_MARK}: this design misses its target ({message}).", *shop.notes),
+        missed=f"this design misses its target ({message})",
     )
 
 
-def tube_cut_of(source: ShopSource, name: str) -> TubeCut:
-    """The cut sheet entry of a tube: length, section, suspension node, predicted pitch."""
+def _strike_of(file: Path | None) -> tuple[float | None, float | None]:
+    """(target Hz, certified Hz) of a result.json's strike-note goal, or (None, None)."""
+    if file is None or Path(file).suffix.lower() != ".json":
+        return None, None
+    for row in json.loads(Path(file).read_text(encoding="utf-8")).get("partials", []):
+        if row.get("family") == "strike":
+            return row.get("target_hz"), row.get("achieved_hz")
+    return None, None
+
+
+def tube_cut_of(source: ShopSource, name: str, file: Path | None = None) -> TubeCut:
+    """The cut sheet entry of a tube: length, section, suspension node and its strike note
+    (from the design's result when ``file`` is one, else from the solve), with its target."""
     part_file, part, modal = source.part_file, source.part, source.modal
     nodes = modal.family("bending")[0].nodes_m
+    target, strike = _strike_of(file)
+    if strike is None:
+        strike = strike_note_hz([m.frequency_hz for m in modal.family("bending")])
+    spec = part_file.material_spec(None) if part_file.material else None
+    a4 = part_file.target.a4_hz if part_file.target is not None else 440.0
+    missed = ""
+    if source.design is not None and not source.design.converged:
+        missed = f"this design misses its target ({source.design.message})"
     return TubeCut(
         name=name,
         length_m=part.length,
@@ -167,25 +221,63 @@ def tube_cut_of(source: ShopSource, name: str) -> TubeCut:
         wall_m=part_file.tube.wall,
         node_from_top_m=nodes[0],
         node_tolerance_m=0.5e-3,
-        material_name=(part_file.material_spec(None).name if part_file.material else ""),
-        predicted_hz=modal.frequency("bending", 1),
+        material_name=spec.name if spec else "",
+        target_hz=target,
+        predicted_hz=strike,
+        material_kind="wood" if spec is not None and spec.kind == "wood" else "metal",
+        mode1_hz=modal.frequency("bending", 1),
+        a4_hz=a4,
+        missed=missed,
     )
 
 
-def wound_string_of(part_file: PartFile, name: str) -> WoundString:
-    """A string's winding schedule: a steel core at its lightest density, copper wrap."""
+WINDING_STATIONS_MM = 10.0  # segments of the winding schedule
+# copper winding wire sizes a maker can buy, mm (common practice, no source)
+WRAP_SIZES_MM = (0.15, 0.2, 0.25, 0.3, 0.35, 0.4, 0.5, 0.6, 0.7, 0.8, 1.0, 1.2)
+WRAP_MARGIN = 1.15  # the heaviest segment stays this far under close-wound
+
+
+def _wrap_diameter(core_d: float, added_max: float) -> float:
+    """The finest wrap wire that adds ``added_max`` kg/m with room to spare: close-wound
+    (pitch = wire diameter) a wire of diameter d adds rho pi d^2 / 4 sqrt((pi D)^2 + d^2) / d,
+    D = core + d, on a single layer."""
+    for d_mm in WRAP_SIZES_MM:
+        d = d_mm * 1e-3
+        close = COPPER_DENSITY * np.pi * d * d / 4 * np.hypot(np.pi * (core_d + d), d) / d
+        if close >= WRAP_MARGIN * added_max:
+            return d
+    raise InputError(
+        f"string: adding {added_max * 1e3:.3g} g/m needs a wrap heavier than "
+        f"{WRAP_SIZES_MM[-1]:g} mm copper; use a thicker core (diameter)"
+    )
+
+
+def wound_string_of(part_file: PartFile, name: str, base: Path | None = None) -> WoundString:
+    """A string's winding schedule: its own core wire (``diameter`` and material) when the
+    part gives one, else a steel core at the lightest density; a copper wrap. The density is
+    read at ``WINDING_STATIONS_MM`` stations (and the profile's ends)."""
     s = part_file.string
     if not s.density_profile:
         raise InputError("string: a winding schedule needs density_profile stations")
     x, mu = np.array(s.density_profile).T
-    core_mu = float(mu.min())
+    if s.diameter is not None:
+        spec = part_file.material_spec(base)
+        core_d, core_rho = s.diameter, spec.rho
+    else:
+        core_d = float(np.sqrt(4 * float(mu.min()) / (np.pi * STEEL_DENSITY)))
+        core_rho = STEEL_DENSITY
+    L = s.length
+    step = WINDING_STATIONS_MM * 1e-3
+    xs = np.unique(np.concatenate([np.arange(0.0, L, step), [L]]))
+    core_mu = core_rho * np.pi * core_d**2 / 4
+    wrap = _wrap_diameter(core_d, max(float(mu.max()) - core_mu, 0.0))
     return WoundString(
         title=name,
-        length_m=s.length,
-        stations_x_m=tuple(x),
-        linear_density_kg_m=tuple(mu),
-        core_diameter_m=np.sqrt(4 * core_mu / (np.pi * STEEL_DENSITY)),
-        core_density_kg_m3=STEEL_DENSITY,
-        wrap_diameter_m=WRAP_DIAMETER,
+        length_m=L,
+        stations_x_m=tuple(xs),
+        linear_density_kg_m=tuple(np.interp(xs, x, mu)),
+        core_diameter_m=core_d,
+        core_density_kg_m3=core_rho,
+        wrap_diameter_m=wrap,
         wrap_density_kg_m3=COPPER_DENSITY,
     )

@@ -21,7 +21,7 @@ from rich.console import Console
 from rich.table import Table
 
 from tonewright.bench import AdviseRequest, advise_bar
-from tonewright.cli_support import atomic_write_bytes, guarded
+from tonewright.cli_support import atomic_write_bytes, check_a4, guarded
 from tonewright.errors import InputError
 from tonewright.optimizer import Advice
 from tonewright.partfile import PartFile, load_part
@@ -95,7 +95,8 @@ def _print(console: Console, payload: dict[str, Any], length_mm: float) -> None:
     if payload["steps"]:
         plan = Table(
             title="Next cuts on the bottom face: where = window centres, mm from the left end; "
-            "depth, length and thinnest in mm; partials after the step in cents from target",
+            "depth, length and thinnest in mm (thinnest: inside the step's windows, once cut); "
+            "partials after the step in cents from target",
             box=box.SIMPLE_HEAD,
             title_justify="left",
             pad_edge=False,
@@ -106,7 +107,7 @@ def _print(console: Console, payload: dict[str, Any], length_mm: float) -> None:
         plan.add_column("length", justify="right", no_wrap=True)
         for p in payload["partials"]:
             plan.add_column(p["partial"], justify="right")
-        plan.add_column("thinnest", justify="right")
+        plan.add_column("thinnest in cut", justify="right")
         for s in payload["steps"]:
             each = s["tool_width_mm"]
             length = f"2 x {each:g}" if len(s["windows_mm"]) == 2 else f"{s['length_mm']:g}"
@@ -116,7 +117,7 @@ def _print(console: Console, payload: dict[str, Any], length_mm: float) -> None:
                 f"{s['depth_mm']:.3f}",
                 length,
                 *[f"{r['cents']:+.2f}" for r in s["predicted"]],
-                f"{s['thinnest_after_mm']:.2f}",
+                f"{s['thinnest_in_window_after_mm']:.2f}",
             )
         console.print(plan)
     console.print(payload["message"])
@@ -130,6 +131,8 @@ def _print(console: Console, payload: dict[str, Any], length_mm: float) -> None:
         )
     for note in payload["notes"]:
         console.print(f"note: {note}")
+    if "a4_hz" in payload:
+        console.print(f"target notes in equal temperament at A4 = {payload['a4_hz']:g} Hz")
     console.print(f"caution: {payload['caution']}")
 
 
@@ -214,9 +217,21 @@ def register(app: typer.Typer) -> None:
         ] = False,
         count: Annotated[int, typer.Option(help="Strongest partials taken from --wav.")] = 12,
         fmin: Annotated[float, typer.Option(help="Lowest frequency searched in --wav, Hz.")] = 20.0,
+        a4: Annotated[
+            float | None,
+            typer.Option(
+                "--a4",
+                help="Pitch reference A4 in Hz for the target's notes (default: the "
+                "[target] table's a4_hz, else 440).",
+            ),
+        ] = None,
     ) -> None:
         """Plan the next small cuts toward the target from a tap on a half-finished bar."""
         part_file, base = load_part(file)
+        if a4 is not None and part_file.target is not None:
+            check_a4(a4)
+            target = part_file.target.model_copy(update={"a4_hz": a4})
+            part_file = part_file.model_copy(update={"target": target})
         if part_file.bar is None:
             raise InputError(
                 f"{file.name}: advise works on bars; this file holds a [{part_file.kind}]"

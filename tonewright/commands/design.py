@@ -17,6 +17,7 @@ from tonewright.design import DesignReport, build_problem, design_report
 from tonewright.design_files import (
     OUTPUTS,
     check_out_dir,
+    summary_text,
     tail_lines,
     unwanted_lines,
     write_design,
@@ -46,9 +47,7 @@ def print_report(console: Console, report: DesignReport, out: Path) -> None:
     console.print(table)
     for line in unwanted_lines(report):
         console.print(line, markup=False)
-    console.print(
-        "  " + ", ".join(f"{k.replace('_', ' ')} {v:.2f}" for k, v in report.summary.items())
-    )
+    console.print("  " + summary_text(report.summary), markup=False)
     if report.nodes_mm:
         console.print("  mode-1 nodes (mm): " + ", ".join(f"{x:.1f}" for x in report.nodes_mm))
     verdict = (

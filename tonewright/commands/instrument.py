@@ -48,12 +48,26 @@ def _fmt(value: float | None, digits: int) -> str:
     return "" if value is None else f"{value:.{digits}f}"
 
 
+def _short(partial: dict) -> str:
+    """ "B1" for bending 1, "S" for a strike note."""
+    family = str(partial.get("family", "?"))
+    return "S" if family == "strike" else f"{family[0].upper()}{partial.get('order', '')}"
+
+
 def print_table(console: Console, rows: Sequence[BarRow]) -> None:
     """The summary, compact enough for 80 columns: full figures are in summary.csv."""
     table = Table(title="Instrument", box=box.SIMPLE_HEAD, padding=(0, 0, 0, 1), pad_edge=False)
     table.add_column("note", no_wrap=True)
     table.add_column("f1 Hz", justify="right", no_wrap=True)
-    table.add_column("cents off", justify="right", no_wrap=True)
+    # one column per tuned partial, headed by its name (bars of a range tune 1 to 3 each)
+    labels: list[str] = []
+    for r in rows:
+        for p in r.partials:
+            name = _short(p)
+            if name not in labels:
+                labels.append(name)
+    for name in labels:
+        table.add_column(name, justify="right", no_wrap=True)
     for name in ("length", "deepest", "thinnest"):
         table.add_column(name, justify="right", no_wrap=True)
     table.add_column("nearest", no_wrap=True)
@@ -64,10 +78,11 @@ def print_table(console: Console, rows: Sequence[BarRow]) -> None:
             m = r.nearest_mode
             nearest = f"{m['family'][0].upper()}{m['order']} {m['gap_hz']:.0f} Hz"
         colour = "green" if r.status == "met" else "red"
+        cents = {_short(p): f"{p['error_cents']:+.1f}" for p in r.partials}
         table.add_row(
             r.note,
             f"{r.partials[0]['target_hz']:.2f}" if r.partials else "",
-            " ".join(f"{p['error_cents']:+.1f}" for p in r.partials),
+            *(cents.get(name, "") for name in labels),
             _fmt(r.length_mm, 1),
             _fmt(r.max_depth_mm, 1),
             _fmt(r.min_thickness_mm, 1),
@@ -76,7 +91,8 @@ def print_table(console: Console, rows: Sequence[BarRow]) -> None:
         )
     console.print(table)
     console.print(
-        "  lengths in mm; cents off: each tuned partial from its target; nearest: the torsional "
+        "  lengths in mm; B1, B2, ...: cents of each tuned bending partial from its target "
+        "(empty: not tuned on that bar); nearest: the torsional "
         "(T) or lateral (L) mode nearest a tuned partial, and how far from it, by the "
         f"{UNWANTED_CAVEAT}"
     )

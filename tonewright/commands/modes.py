@@ -13,7 +13,7 @@ from rich.table import Table
 
 from tonewright.cli_support import guarded
 from tonewright.errors import InputError
-from tonewright.modes_report import modes_payload, solve_part_file
+from tonewright.modes_report import modes_payload, solve_part, strike_payload
 
 __all__ = ["register"]
 
@@ -58,16 +58,34 @@ def register(app: typer.Typer) -> None:
             raise InputError(f"--count {count}: give 1 to 50 modes per family")
         if not 300.0 <= a4 <= 600.0:
             raise InputError(f"--a4 {a4}: give the pitch reference in Hz (e.g. 440 or 442)")
-        result, title = solve_part_file(file, count)
+        solved = solve_part(file, count)
+        result, title = solved.result, solved.title
         payload = modes_payload(result, a4)
+        if solved.kind == "tube":
+            payload["strike_note"] = strike_payload(result, a4)
         if as_json:
             typer.echo(json.dumps(payload, indent=2))
             return
         console = Console()
         console.print(_table(payload, title, node_rows=len(payload["modes"])))
+        if "strike_note" in payload:
+            s = payload["strike_note"]
+            console.print(
+                f"strike note (the pitch a chime is heard at; the 2:3:4 series fitted to "
+                f"bending 4-6): {s['frequency_hz']:.2f} Hz, {s['note']} {s['cents']:+.1f} cents",
+                markup=False,
+            )
         console.print(
             f"ratio: to the first bending (or string) mode; notes at A4 = {a4:g} Hz; "
-            f"{result.message}."
+            f"{result.message}.",
+            markup=False,
         )
+        console.print("notes: equal temperament, note name and cents from it", markup=False)
+        if solved.a4_hz is not None and abs(solved.a4_hz - a4) > 1e-9:
+            console.print(
+                f"note: the part's [target] is referred to A4 = {solved.a4_hz:g} Hz; pass "
+                f"--a4 {solved.a4_hz:g} to read the notes the same way",
+                markup=False,
+            )
         if not result.converged:
             raise typer.Exit(code=1)

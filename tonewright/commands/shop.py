@@ -100,14 +100,14 @@ def register(app: typer.Typer) -> None:
             )
             written = write_all(shop, out, options, force=force)
         elif isinstance(part, Tube):
-            cut = tube_cut_of(source, (part_file.title or file.stem) + mark)
+            cut = tube_cut_of(source, (part_file.title or file.stem) + mark, file)
             names = ["tube_cut_sheet.txt", "tube_cut_list.csv"]
             out = prepare_out_dir(out, names, force=force)
             atomic_write_text(out / names[0], tube_cut_sheet([cut]), overwrite=True)
             atomic_write_text(out / names[1], tube_cut_list_csv([cut]), overwrite=True)
             written = [out / n for n in names]
         else:
-            wound = wound_string_of(part_file, (part_file.title or file.stem) + mark)
+            wound = wound_string_of(part_file, (part_file.title or file.stem) + mark, file.parent)
             out = prepare_out_dir(out, ["winding_schedule.csv"], force=force)
             atomic_write_text(
                 out / "winding_schedule.csv", winding_schedule_csv(wound), overwrite=True

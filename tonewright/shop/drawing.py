@@ -23,9 +23,9 @@ from matplotlib.patches import Circle, FancyArrowPatch, Rectangle
 from tonewright import __version__
 from tonewright.acoustics.pitch import cents
 from tonewright.errors import InputError
-from tonewright.shop.cautions import CAUTIONS
+from tonewright.shop.cautions import cautions_for
 from tonewright.shop.pages import new_page, page_size_mm, pdf_bytes, stable_rc, svg_bytes
-from tonewright.shop.part import ShopPart
+from tonewright.shop.part import MISSED_MARK, ShopPart
 
 __all__ = ["drawing_pdf", "drawing_scale", "drawing_svg"]
 
@@ -39,8 +39,39 @@ _NODE = "#1f4e79"
 _TOL = "#c9dced"
 
 
+_LABEL_PT = 4.2  # station labels under the side view
+# DejaVu Sans digits and the point are under 0.64 em wide; the gap keeps labels apart.
+_CHAR_EM, _LABEL_GAP_MM = 0.64, 0.8
+
+
 def _lw(mm: float) -> float:
     return mm * _PT_PER_MM
+
+
+def _label_mm(x_mm: float) -> str:
+    return f"{x_mm:.0f}" if abs(x_mm - round(x_mm)) < 0.05 else f"{x_mm:.1f}"
+
+
+def station_labels(
+    stations_m: tuple[float, ...], corners_m: tuple[float, ...], length_m: float, scale: float
+) -> list[tuple[str, float]]:
+    """``(text, x mm)`` of the station labels that fit without touching, at ``scale`` (paper
+    mm per bar mm): the ends and corners first, then multiples of 50 mm, then the rest."""
+    width_mm = _CHAR_EM * _LABEL_PT * 25.4 / 72.0  # one character on paper
+
+    def rank(x_m: float) -> int:
+        if x_m in (0.0, length_m) or any(abs(x_m - c) < 1e-6 for c in corners_m):
+            return 0
+        return 1 if abs(x_m * 1000.0 / 50.0 - round(x_m * 1000.0 / 50.0)) < 1e-6 else 2
+
+    placed: list[tuple[float, float, str, float]] = []
+    for x_m in sorted(stations_m, key=lambda v: (rank(v), v)):
+        text = _label_mm(x_m * 1000.0)
+        centre = scale * x_m * 1000.0
+        half = 0.5 * len(text) * width_mm + _LABEL_GAP_MM
+        if all(centre + half <= lo or centre - half >= hi for lo, hi, _, _ in placed):
+            placed.append((centre - half, centre + half, text, x_m * 1000.0))
+    return [(text, x) for _, _, text, x in sorted(placed)]
 
 
 def drawing_scale(
@@ -170,30 +201,46 @@ def _draw_table(ax: Axes, t: _Table, x: float, top: float) -> None:
         y -= _ROW_MM
 
 
+STATION_SPACINGS_MM = (5.0, 10.0, 20.0, 25.0, 50.0)
+
+
+def table_stations_mm(part: ShopPart, spacing_mm: float) -> list[tuple[float, float, bool]]:
+    """``(x, leave t, corner?)`` in mm at round stations over the cut plus the corners."""
+    xs = part.round_stations_m(spacing_mm, cut_only=True)
+    corners = part.corners_m()
+    out = []
+    for x in xs:
+        corner = any(abs(x - c) < 1e-6 for c in corners)
+        sides = part.thickness_sides_m(x) if corner else (float(part.thickness_m(x)),)
+        out += [(x * 1000.0, t * 1000.0, corner) for t in sides]  # a step: both sides
+    return out
+
+
 def _station_tables(
     part: ShopPart, rows_per_block: int, max_blocks: int
-) -> tuple[list[_Table], int]:
-    x = np.asarray(part.stations_x_m) * 1000.0
-    t = np.asarray(part.stations_thickness_m) * 1000.0
+) -> tuple[list[_Table], float]:
+    """The station table at the finest round spacing that fits ``max_blocks`` blocks."""
     T = part.blank_thickness_m * 1000.0
-    idx = np.arange(x.size)
-    every = max(1, math.ceil(x.size / (rows_per_block * max_blocks)))
-    if every > 1:  # keep the ends and the thinnest station
-        keep = set(idx[::every]) | {0, x.size - 1, int(np.argmin(t))}
-        idx = np.array(sorted(keep))
-    rows = [(f"{i + 1}", f"{x[i]:.1f}", f"{t[i]:.2f}", f"{T - t[i]:.2f}") for i in idx]
+    for spacing in STATION_SPACINGS_MM:
+        stations = table_stations_mm(part, spacing)
+        if len(stations) <= rows_per_block * max_blocks:
+            break
+    rows = [
+        (f"{x:.1f}" + ("*" if corner else ""), f"{t:.2f}", f"{T - t:.2f}")
+        for x, t, corner in stations
+    ]
     per_block = math.ceil(len(rows) / math.ceil(len(rows) / rows_per_block))  # balanced
     blocks = [rows[k : k + per_block] for k in range(0, len(rows), per_block)]
     tables = [
         _Table(
-            "Undercut stations (mm)" if b == 0 else "Stations, continued",
-            ("no.", "x", "leave t", "cut depth"),
+            "Undercut (mm)" if b == 0 else "Undercut, continued",
+            ("x", "leave t", "cut depth"),
             tuple(block),
-            (7.0, 13.0, 13.0, 15.0),
+            (14.0, 13.0, 15.0),
         )
         for b, block in enumerate(blocks)
     ]
-    return tables, every
+    return tables, spacing
 
 
 def _other_tables(part: ShopPart) -> list[_Table]:
@@ -258,28 +305,59 @@ def _title_block(
         va="top",
     )
     ax.plot([x, x + w], [y + h - 11.0] * 2, color=_INK, lw=_lw(0.2))
+    # (label, value, full width?): the material and the certifying model get a whole row
     cells = [
-        ("material", textwrap.shorten(part.material_name or "not given", 30)),
-        ("grain", textwrap.shorten(part.grain_note, 30)),
-        ("scale", f"{scale_label} on {sheet}"),
-        ("units", "millimetres"),
+        ("material", part.material_name or "not given", True),
+        ("grain", textwrap.shorten(part.grain_note, 30), False),
+        ("scale", f"{scale_label} on {sheet}", False),
         (
-            "blank L x W x T",
+            "blank L x W x T (mm)",
             f"{part.length_m * 1000:.1f} x {part.width_m * 1000:.1f} x "
             f"{part.blank_thickness_m * 1000:.1f}",
+            False,
         ),
-        ("sheet", "1 of 1"),
-        ("made with", f"tonewright {__version__}"),
-        ("checked", ""),
+        ("sheet", "1 of 1", False),
+        ("partials certified by", part.certified_by or "not stated", True),
+        ("made with", f"tonewright {__version__}", False),
+        ("checked", "", False),
     ]
-    row_h = (h - 11.0) / 4
-    for k, (label, value) in enumerate(cells):
-        cx = x + (k % 2) * w * 0.55
-        cw = w * 0.55 if k % 2 == 0 else w * 0.45
-        cy = y + h - 11.0 - (k // 2 + 1) * row_h
-        ax.add_patch(Rectangle((cx, cy), cw, row_h, fill=False, lw=_lw(0.1), ec="0.4"))
-        ax.text(cx + 1.0, cy + row_h - 0.8, label, fontsize=4.2, color="0.4", va="top")
-        ax.text(cx + 1.0, cy + 1.0, value, fontsize=6, va="bottom")
+    rows: list[list[tuple[str, str, bool]]] = []
+    for cell in cells:
+        if cell[2] or not rows or len(rows[-1]) == 2 or rows[-1][0][2]:
+            rows.append([cell])
+        else:
+            rows[-1].append(cell)
+    row_h = (h - 11.0) / len(rows)
+    for r, row in enumerate(rows):
+        cy = y + h - 11.0 - (r + 1) * row_h
+        for k, (label, value, full) in enumerate(row):
+            cw = w if full else (w * 0.55 if k == 0 else w * 0.45)
+            cx = x + (0.0 if k == 0 else w * 0.55)
+            ax.add_patch(Rectangle((cx, cy), cw, row_h, fill=False, lw=_lw(0.1), ec="0.4"))
+            ax.text(cx + 1.0, cy + row_h - 0.6, label, fontsize=4.0, color="0.4", va="top")
+            size = (
+                6.0
+                if len(value) * 1.3 < cw - 2.0
+                else max(4.0, 6.0 * (cw - 2.0) / (1.3 * len(value)))
+            )
+            ax.text(cx + 1.0, cy + 0.8, value, fontsize=size, va="bottom")
+
+
+def _missed_banner(ax: Axes, part: ShopPart, x: float, y: float, width: float) -> None:
+    """A red band across the sheet: this design misses its target."""
+    ax.add_patch(Rectangle((x, y), width, 6.0, color="#b00020", lw=0, zorder=9))
+    text = f"{MISSED_MARK}: {part.missed}"
+    ax.text(
+        x + 2.0,
+        y + 3.0,
+        textwrap.shorten(text, int(width / 1.6)),
+        fontsize=7.5,
+        fontweight="bold",
+        color="white",
+        va="center",
+        zorder=10,
+        gid="missed-design",
+    )
 
 
 def _views(ax: Axes, part: ShopPart, s: float, x0: float, y_side: float, y_plan: float) -> None:
@@ -314,25 +392,29 @@ def _views(ax: Axes, part: ShopPart, s: float, x0: float, y_side: float, y_plan:
         fontsize=6.5,
         fontweight="bold",
     )
-    # Station numbers below the side view, thinned so they never overlap.
-    min_gap = 2.6
-    last = -np.inf
-    for i, (xv, yv) in enumerate(zip(xs, yb, strict=True)):
-        ax.plot([px(xv)] * 2, [y_side + s * yv, y_side + s * yv - 1.0], color=_INK, lw=_lw(0.1))
-        if px(xv) - last >= min_gap or i == xs.size - 1:
-            ax.text(
-                px(xv), y_side - 1.5, f"{i + 1}", fontsize=3.8, ha="center", va="top", color="0.3"
-            )
-            last = px(xv)
-    ax.text(x0 - 2, y_side - 1.5, "stn", fontsize=3.8, ha="right", va="top", color="0.3")
+    # Round stations (and the corners) ticked under the side view; their x labelled where
+    # the labels fit side by side: ends and corners first, then every 50, then the rest.
+    ticks = part.round_stations_m(10.0, cut_only=True)
+    corners = part.corners_m()
+    for xv in ticks:
+        yv = float(part.bottom_surface_m(xv)) * 1000.0
+        ax.plot(
+            [px(xv * 1000.0)] * 2,
+            [y_side + s * yv - 0.4, y_side + s * yv - 1.4],
+            color=_INK,
+            lw=_lw(0.1),
+        )
+    for text, at in station_labels(ticks, corners, part.length_m, s):
+        ax.text(px(at), y_side - 1.5, text, fontsize=_LABEL_PT, ha="center", va="top", color="0.3")
+    ax.text(x0 - 2, y_side - 1.5, "x mm", fontsize=_LABEL_PT, ha="right", va="top", color="0.3")
     _dim_h(ax, x0, px(L), y_side + s * T + 6.0, y_side + s * T, f"{L:.1f}")
     _dim_v(ax, y_side, y_side + s * T, x0 - 6.0, x0, f"{T:.1f}")
     i_min = int(np.argmin(part.stations_thickness_m))
     t_min = part.stations_thickness_m[i_min] * 1000.0
     ax.text(
         px(xs[i_min]),
-        y_side - 4.2,
-        f"thinnest: leave {t_min:.2f} at x = {xs[i_min]:.1f} (station {i_min + 1})",
+        y_side - 4.6,
+        f"thinnest: leave {t_min:.2f} at x = {xs[i_min]:.1f}",
         fontsize=5.5,
         va="top",
         ha="center",
@@ -409,7 +491,7 @@ def _figure(part: ShopPart, paper: str, orientation: str) -> Figure:
 
     # Views: side view at the top, plan view under it, node dimensions under that.
     x0 = fx0 + 0.5 * (fx1 - fx0 - 40.0 - s * L) + 14.0
-    y_side = fy1 - 18.0 - s * T
+    y_side = fy1 - 18.0 - s * T - (7.0 if part.missed else 0.0)  # room for the banner
     y_plan = y_side - 12.0 - s * B
     _views(ax, part, s, x0, y_side, y_plan)
     n_dims = len(part.node_positions_m)
@@ -417,7 +499,9 @@ def _figure(part: ShopPart, paper: str, orientation: str) -> Figure:
 
     # Cautions along the bottom left, as many lines as the width needs.
     tb_x = fx1 - _TB_W
-    caution_lines = textwrap.wrap("CAUTIONS: " + " ".join(CAUTIONS), int((tb_x - fx0 - 6.0) / 1.05))
+    caution_lines = textwrap.wrap(
+        "CAUTIONS: " + " ".join(cautions_for(part.caution_kind)), int((tb_x - fx0 - 6.0) / 1.05)
+    )
     caution_h = 2.2 * len(caution_lines) + 4.0
     ax.text(
         fx0 + 2.0,
@@ -448,10 +532,14 @@ def _figure(part: ShopPart, paper: str, orientation: str) -> Figure:
         fixed_notes.insert(0, "* hole centre height above the bar's bottom surface at that x.")
     placed: list[tuple[_Table | _Notes, float, float]] = []
     for max_blocks, user_notes in ((3, True), (2, True), (1, True), (3, False), (1, False)):
-        stations, every = _station_tables(part, rows_fit, max_blocks)
+        stations, spacing = _station_tables(part, rows_fit, max_blocks)
         notes = list(fixed_notes)
-        if every > 1:
-            notes.insert(0, f"One station in {every} listed; the cut table (CSV) has them all.")
+        notes.insert(
+            0,
+            f"Stations every {spacing:g} mm over the cut, straight between rows; x* is a corner "
+            "of the profile (where the cut starts or ends, the thinnest point, a step's edge: two "
+            "rows, before and after it).",
+        )
         notes += list(part.notes) if user_notes else ["Further notes: see the cut table (CSV)."]
         placed, ok = [], True
         cx, cy, col_w = fx0 + 2.0, tables_top, 0.0
@@ -474,6 +562,8 @@ def _figure(part: ShopPart, paper: str, orientation: str) -> Figure:
         else:
             _draw_notes(ax, item, tx, ty)
     _title_block(ax, part, tb_x, fy0, scale_label, f"{paper} {orientation}")
+    if part.missed:
+        _missed_banner(ax, part, fx0, fy1 - 7.0, fx1 - fx0)
     return fig
 
 

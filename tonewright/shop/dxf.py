@@ -86,7 +86,7 @@ def dxf_text(part: ShopPart) -> str:
             "layers: OUTLINE bar and (dashed) blank; UNDERCUT cut path; HOLES; NODES "
             f"(dashed: +-{tol:g} mm); TEXT",
             *(f"note: {n}" for n in part.notes),
-            *caution_lines(100),
+            *caution_lines(100, part.caution_kind),
         ]
         height = 2.5
         for i, line in enumerate(lines):

@@ -511,7 +511,7 @@ def _header(part: ShopPart, opt: GcodeOptions, plan: UndercutPlan) -> list[str]:
         )
     )
     out.append(_comment(""))
-    out.extend(_comment(line) for line in caution_lines(68))
+    out.extend(_comment(line) for line in caution_lines(68, part.caution_kind))
     out.append(_comment(""))
     return out
 

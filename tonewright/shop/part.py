@@ -24,10 +24,16 @@ import numpy as np
 
 from tonewright.errors import InputError
 
-__all__ = ["ShopPart"]
+__all__ = ["CORNER_TURN", "CUT_MIN_MM", "MISSED_MARK", "ShopPart"]
+
+MISSED_MARK = "MISSED DESIGN"
 
 # Station positions closer than this to 0 or L count as the end (floating-point slack).
 _END_SLACK_M = 1e-9
+# A cut shallower than this (mm) is no cut: the tables print two decimals.
+CUT_MIN_MM = 0.01
+# A corner: the profile's slope turns by more than this (radians, about 1 degree) at a station.
+CORNER_TURN = 0.02
 
 
 def _positive(name: str, value: object, what: str = "length in metres") -> float:
@@ -82,6 +88,9 @@ class ShopPart:
     grain_note: str = "grain along the length"
     partials: tuple[tuple[str, float | None, float], ...] = ()
     notes: tuple[str, ...] = ()
+    certified_by: str = ""  # the model whose partials the sheets show
+    missed: str = ""  # non-empty: the design missed its target (why); marked on every sheet
+    caution_kind: str = "wood"  # which cautions the sheets carry: "wood" or "metal"
 
     def __post_init__(self) -> None:
         put = object.__setattr__
@@ -141,7 +150,9 @@ class ShopPart:
             raise InputError(f"node_tolerance_m: {self.node_tolerance_m!r} must be >= 0 metres")
         put(self, "node_tolerance_m", tol)
 
-        for name in ("material_name", "grain_note"):
+        if self.caution_kind not in ("wood", "metal"):
+            raise InputError(f"caution_kind: {self.caution_kind!r} must be 'wood' or 'metal'")
+        for name in ("material_name", "grain_note", "certified_by", "missed"):
             if not isinstance(getattr(self, name), str):
                 raise InputError(f"{name}: {getattr(self, name)!r} must be text")
 
@@ -199,6 +210,52 @@ class ShopPart:
     @property
     def min_thickness_m(self) -> float:
         return float(min(self.stations_thickness_m))
+
+    def corners_m(self) -> tuple[float, ...]:
+        """The profile's corners: where the cut starts and ends (depth over ``CUT_MIN_MM``),
+        its thinnest point, and every station where the slope turns by more than
+        ``CORNER_TURN`` (a step's edge, a user profile's vertex; a design's fine stations
+        along a smooth curve turn far less). Positions in metres, increasing."""
+        x = np.asarray(self.stations_x_m)
+        depth = self.blank_thickness_m - np.asarray(self.stations_thickness_m)
+        cut = np.flatnonzero(depth > CUT_MIN_MM * 1e-3)
+        if cut.size == 0:
+            return ()
+        out = [x[max(cut[0] - 1, 0)], x[min(cut[-1] + 1, x.size - 1)]]
+        out.append(x[int(np.argmin(self.stations_thickness_m))])
+        slope = np.diff(-depth) / np.diff(x)
+        turn = np.abs(np.diff(np.arctan(slope)))
+        out += list(x[1:-1][turn > CORNER_TURN])
+        # to 0.01 mm: a step's sides, a kink's neighbours and a round station coincide
+        out = np.unique(np.round(np.asarray(out, dtype=float), 5))
+        keep = np.concatenate(([True], np.diff(out) > 0.05e-3))  # a step's two sides are one
+        return tuple(float(v) for v in out[keep])
+
+    def round_stations_m(self, spacing_mm: float, cut_only: bool = False) -> tuple[float, ...]:
+        """Stations at whole multiples of ``spacing_mm`` plus the corners (and both ends),
+        in metres. ``cut_only``: grid stations only over the cut (from its start to its end),
+        where a maker measures; the ends stay."""
+        L = self.length_m
+        step = spacing_mm * 1e-3
+        grid = np.arange(0, np.floor(L / step + 1e-9) + 1) * step
+        corners = self.corners_m()
+        if cut_only and corners:
+            lo, hi = corners[0], corners[-1]
+            grid = grid[(grid >= lo - 1e-9) & (grid <= hi + 1e-9)]
+        xs = np.unique(np.concatenate((grid, corners, [0.0, L])))
+        keep = np.concatenate(([True], np.diff(xs) > 1e-6))
+        return tuple(float(v) for v in xs[keep])
+
+    def thickness_sides_m(self, x_m: float) -> tuple[float, ...]:
+        """The thickness at ``x_m``; at a step (a jump over a few micrometres) both sides,
+        left first, so a table can give the step as two rows at the same x."""
+        left, right = (float(v) for v in self.thickness_m(np.array([x_m - 3e-6, x_m + 3e-6])))
+        if abs(left - right) > 0.005e-3:
+            return (left, right)
+        return (float(self.thickness_m(x_m)),)
+
+    def is_corner_m(self, x_m: float) -> bool:
+        return any(abs(x_m - c) < 1e-6 for c in self.corners_m())
 
     @property
     def file_stem(self) -> str:

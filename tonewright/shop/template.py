@@ -24,9 +24,9 @@ from matplotlib.figure import Figure
 from matplotlib.patches import Circle, Rectangle
 
 from tonewright.errors import InputError
-from tonewright.shop.cautions import CAUTIONS, PRINT_SCALE_NOTE
+from tonewright.shop.cautions import PRINT_SCALE_NOTE, cautions_for
 from tonewright.shop.pages import new_page, page_size_mm, pdf_bytes, stable_rc, svg_bytes
-from tonewright.shop.part import ShopPart
+from tonewright.shop.part import MISSED_MARK, ShopPart
 
 __all__ = ["TileLayout", "template_layout", "template_pdf", "template_svgs"]
 
@@ -108,13 +108,18 @@ def _draw_bar(ax: Axes, part: ShopPart) -> None:
     ax.plot(
         ox, oy, color="black", lw=_lw(0.3), gid="bar-outline", zorder=4, solid_joinstyle="miter"
     )
-    # Station ticks under the bottom surface, for transferring the profile to the blank.
+    # Round stations (every 10 mm over the cut, and the corners) as short ticks that start
+    # clear of the outline, so the cut line itself stays one clean line to trace.
+    ticks_m = np.asarray(part.round_stations_m(10.0, cut_only=True))
+    tx = ticks_m * 1000.0
+    ty = part.bottom_surface_m(ticks_m) * 1000.0
     ax.plot(
-        np.column_stack((xs, xs, np.full(xs.size, np.nan))).ravel(),
-        np.column_stack((yb, yb - 1.5, np.full(xs.size, np.nan))).ravel(),
-        color="black",
-        lw=_lw(0.15),
-        zorder=4,
+        np.column_stack((tx, tx, np.full(tx.size, np.nan))).ravel(),
+        np.column_stack((ty - 0.8, ty - 2.3, np.full(tx.size, np.nan))).ravel(),
+        color="0.35",
+        lw=_lw(0.12),
+        zorder=3,
+        gid="station-ticks",
     )
     ax.plot(
         [L / 2, L / 2], [-2.0, T + 2.0], color="0.3", lw=_lw(0.15), ls=(0, (8, 2, 1, 2)), zorder=3
@@ -235,7 +240,12 @@ def _draw_page_furniture(ax: Axes, layout: TileLayout, part: ShopPart, i: int) -
     ax.text(
         wx + 2,
         top - 2,
-        f"{part.title} \u2013 full-size template, side view",
+        # the title stops short of the missed-design band (about 1.9 mm a character)
+        textwrap.shorten(
+            f"{part.title} \u2013 full-size template, side view",
+            int((0.53 if part.missed else 0.98) * ww / 1.9),
+            placeholder=" ...",
+        ),
         fontsize=8.5,
         fontweight="bold",
         va="top",
@@ -251,6 +261,18 @@ def _draw_page_furniture(ax: Axes, layout: TileLayout, part: ShopPart, i: int) -
         )
     ax.text(wx + 2, top - 7.0, label, fontsize=6.5, va="top", gid="page-label")
     ax.text(wx + 2, top - 11.0, PRINT_SCALE_NOTE, fontsize=6.5, va="top", fontweight="bold")
+    if part.missed:
+        ax.add_patch(Rectangle((wx + ww * 0.55, top - 9.5), ww * 0.45 - 1.0, 8.0, color="#b00020"))
+        ax.text(
+            wx + ww * 0.55 + 1.5,
+            top - 5.5,
+            "\n".join(textwrap.wrap(f"{MISSED_MARK}: {part.missed}", int(ww * 0.45 / 1.3))[:2]),
+            fontsize=6,
+            fontweight="bold",
+            color="white",
+            va="center",
+            gid="missed-design",
+        )
 
     # 100 mm scale bar: a solid bar with 10 mm ticks above it.
     sx, sy = wx + 4.0, MARGIN_MM + FOOTER_MM - 9.0
@@ -285,7 +307,7 @@ def _draw_page_furniture(ax: Axes, layout: TileLayout, part: ShopPart, i: int) -
         fontsize=6,
     )
     chars = int((ww - 4) / 1.05)  # ~1.05 mm per character at 5 pt
-    text = "CAUTIONS: " + " ".join(CAUTIONS)
+    text = "CAUTIONS: " + " ".join(cautions_for(part.caution_kind))
     lines = textwrap.wrap(text, width=chars)
     ax.text(wx + 2, sy - 2.5, "\n".join(lines), va="top", fontsize=5, linespacing=1.25)
 

@@ -19,6 +19,8 @@ its exact added mass.
 
 from __future__ import annotations
 
+import csv
+import io
 import math
 from collections.abc import Sequence
 from dataclasses import dataclass
@@ -26,7 +28,7 @@ from dataclasses import dataclass
 import numpy as np
 from scipy.optimize import brentq
 
-from tonewright.acoustics.pitch import cents
+from tonewright.acoustics.pitch import cents, hz_to_note
 from tonewright.errors import InputError
 from tonewright.shop.cautions import caution_lines, comment_lines
 from tonewright.shop.part import _positive
@@ -73,8 +75,12 @@ class TubeCut:
     hole_diameter_m: float = 0.004
     node_tolerance_m: float = 0.0
     material_name: str = ""
-    target_hz: float | None = None
-    predicted_hz: float | None = None
+    target_hz: float | None = None  # the strike note's target
+    predicted_hz: float | None = None  # the strike note (not mode 1) as certified
+    material_kind: str = "metal"  # which cautions apply: metal, or wood (bamboo, ...)
+    mode1_hz: float | None = None  # the first bending mode, for reference
+    a4_hz: float = 440.0  # the pitch reference of the notes shown
+    missed: str = ""  # non-empty: the design missed its target (why)
 
     def __post_init__(self) -> None:
         if not isinstance(self.name, str) or not self.name.strip():
@@ -101,7 +107,7 @@ class TubeCut:
         tol = float(self.node_tolerance_m)
         if not math.isfinite(tol) or tol < 0:
             raise InputError(f"{self.name}: node_tolerance_m {tol!r} must be >= 0")
-        for f in ("target_hz", "predicted_hz"):
+        for f in ("target_hz", "predicted_hz", "mode1_hz"):
             v = getattr(self, f)
             if v is not None:
                 _pos(f"{self.name}: {f}", v)
@@ -124,12 +130,31 @@ def _tube_rows(tubes: Sequence[TubeCut]) -> list[dict[str, str]]:
                 "hole_tolerance_mm": f"{t.node_tolerance_m * 1000:.1f}",
                 "hole_diameter_mm": f"{t.hole_diameter_m * 1000:.1f}",
                 "uniform_node_mm": f"{frac * t.length_m * 1000:.1f}",
-                "target_hz": "" if t.target_hz is None else f"{t.target_hz:.2f}",
-                "predicted_hz": "" if t.predicted_hz is None else f"{t.predicted_hz:.2f}",
-                "cents": dev,
+                "strike_note": "" if t.predicted_hz is None else _note(t.predicted_hz, t.a4_hz),
+                "strike_target_hz": "" if t.target_hz is None else f"{t.target_hz:.2f}",
+                "strike_hz": "" if t.predicted_hz is None else f"{t.predicted_hz:.2f}",
+                "strike_cents_off": dev,
+                "mode1_hz": "" if t.mode1_hz is None else f"{t.mode1_hz:.2f}",
+                "a4_hz": f"{t.a4_hz:g}",
+                "status": ("MISSED DESIGN: " + t.missed) if t.missed else "",
             }
         )
     return rows
+
+
+def _note(f_hz: float, a4_hz: float) -> str:
+    name, off = hz_to_note(f_hz, a4_hz)
+    return f"{name} {off:+.1f}"
+
+
+def _csv_text(comments: list[str], rows: list[dict[str, str]]) -> str:
+    """``#`` comment lines, then a header and the rows written by the csv module (a title
+    with a comma is quoted, so every row has as many fields as the header)."""
+    buf = io.StringIO()
+    writer = csv.DictWriter(buf, fieldnames=list(rows[0]), lineterminator="\n")
+    writer.writeheader()
+    writer.writerows(rows)
+    return "\n".join(comments) + "\n" + buf.getvalue()
 
 
 def _check_tubes(tubes: Sequence[TubeCut], kerf_mm: float) -> None:
@@ -151,12 +176,13 @@ def tube_cut_list_csv(tubes: Sequence[TubeCut], kerf_mm: float = 2.0) -> str:
         "# units: millimetres and hertz; hole_from_top_mm = centre of the hanging hole from "
         "the top (hanging) end, at the computed mode-1 node",
         "# uniform_node_mm = 0.2242 L, the node of a uniform free-free tube, for comparison",
+        "# strike_note: the pitch a chime is heard at (the 2:3:4 series fitted to bending modes "
+        "4-6), note name and cents at a4_hz, equal temperament; mode1_hz: the lowest bending "
+        "mode, which is not the pitch",
         f"# stock needed: {total:.0f} mm including {kerf_mm:g} mm saw kerf per cut",
-        *comment_lines("# ", 90),
+        *comment_lines("# ", 90, _kind(tubes)),
     ]
-    cols = list(rows[0])
-    lines = [*head, ",".join(cols)] + [",".join(r[c] for c in cols) for r in rows]
-    return "\n".join(lines) + "\n"
+    return _csv_text(head, rows)
 
 
 def tube_cut_sheet(tubes: Sequence[TubeCut], kerf_mm: float = 2.0) -> str:
@@ -164,6 +190,13 @@ def tube_cut_sheet(tubes: Sequence[TubeCut], kerf_mm: float = 2.0) -> str:
     _check_tubes(tubes, kerf_mm)
     frac = uniform_node_fraction()
     out = ["TUBE CUT SHEET (tonewright)", "=" * 27, ""]
+    a4 = {t.a4_hz for t in tubes}
+    out += [
+        "Pitches are strike notes: the 2:3:4 series fitted to bending modes 4-6, the note a",
+        f"chime is heard at; notes in equal temperament at A4 = {', '.join(f'{v:g}' for v in a4)} "
+        "Hz.",
+        "",
+    ]
     for t, r in zip(tubes, _tube_rows(tubes), strict=True):
         out.append(f"{t.name}  ({t.material_name or 'material not given'})")
         out.append(f"  cut length            {r['cut_length_mm']} mm")
@@ -179,11 +212,15 @@ def tube_cut_sheet(tubes: Sequence[TubeCut], kerf_mm: float = 2.0) -> str:
             f"  (uniform-tube node    {r['uniform_node_mm']} mm = {frac:.4f} L; "
             f"given node {shift:+.1f} %)"
         )
+        if t.missed:
+            out.append(f"  MISSED DESIGN         {t.missed}")
         if t.predicted_hz:
-            line = f"  predicted             {t.predicted_hz:.2f} Hz"
+            line = f"  strike note           {t.predicted_hz:.2f} Hz ({r['strike_note']} cents)"
             if t.target_hz:
-                line += f" (target {t.target_hz:.2f} Hz, {r['cents']} cents)"
+                line += f"; target {t.target_hz:.2f} Hz, {r['strike_cents_off']} cents off"
             out.append(line)
+        if t.mode1_hz:
+            out.append(f"  lowest mode           {t.mode1_hz:.2f} Hz (bending 1; not the pitch)")
         out.append("")
     total = sum(t.length_m for t in tubes) * 1000 + kerf_mm * len(tubes)
     out.append(f"Stock needed: {total:.0f} mm including {kerf_mm:g} mm saw kerf per cut.")
@@ -192,8 +229,12 @@ def tube_cut_sheet(tubes: Sequence[TubeCut], kerf_mm: float = 2.0) -> str:
         "a shorter tube sounds higher."
     )
     out.append("")
-    out += caution_lines(90)
+    out += caution_lines(90, _kind(tubes))
     return "\n".join(out) + "\n"
+
+
+def _kind(tubes: Sequence[TubeCut]) -> str:
+    return "metal" if any(t.material_kind != "wood" for t in tubes) else "wood"
 
 
 # --- strings --------------------------------------------------------------------------------
@@ -314,7 +355,7 @@ def winding_schedule_csv(s: WoundString) -> str:
         "# method: wrap = wind at pitch_mm; point mass = fix added_mass_g at the segment's "
         "centre (bead or crimp: too little for a wrap); bare = core only",
         f"# total added mass {sum(g.added_mass_kg for g in segs) * 1000:.3f} g",
-        *comment_lines("# ", 90),
+        *comment_lines("# ", 90, "string"),
     ]
     lines = [
         *head,
