@@ -113,13 +113,25 @@ def _check_replaceable(path: Path, overwrite: bool) -> None:
 
 
 def check_folder_possible(folder: Path, prefix: str) -> None:
-    """Refuse, in one line after ``prefix``, a ``folder`` that could not be created because
-    it or one of its parents is a file; creates nothing."""
+    """Refuse, in one line after ``prefix``, a ``folder`` that could not be created (one of
+    its parents is a file, or the place is not writable). Leaves nothing behind: a missing
+    folder is made and removed again, so a long job learns this before it starts."""
+    missing = []
     for parent in (folder, *folder.parents):
         if parent.is_symlink() or parent.exists():
             if not parent.is_dir():
                 raise InputError(f"{prefix}: {parent} is a file, not a folder")
             break
+        missing.append(parent)
+    if not missing:
+        return
+    try:
+        folder.mkdir(parents=True)
+    except OSError as exc:
+        reason = (exc.strerror or type(exc).__name__).lower()
+        raise InputError(f"{prefix}: cannot create the folder {folder} ({reason})") from None
+    for made in missing:  # innermost first
+        made.rmdir()
 
 
 def _make_folder(folder: Path, prefix: str) -> None:
