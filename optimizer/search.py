@@ -147,7 +147,7 @@ def _global_search(
     radius = getattr(space, "cutter_radius", 0.0)
 
     def fitness(u: np.ndarray) -> tuple[float, Evaluation, bool]:
-        ev = evaluator.evaluate(u, log=log)
+        ev = evaluator.evaluate(u, log=log, shapes=False)  # residuals only: eigenvalues
         margin = space.curvature_margin(u)
         return _penalised(ev, margin, radius), ev, margin >= 0
 
