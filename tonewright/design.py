@@ -58,7 +58,8 @@ from tonewright.optimizer import (
     corrected_design,
     design,
 )
-from tonewright.optimizer.search import rechecked
+from tonewright.optimizer.screen import Reach, screen_bar
+from tonewright.optimizer.search import rechecked, unreachable
 from tonewright.partfile import DesignTable, PartFile, parse_part
 from tonewright.tuning import ResolvedTarget, resolve
 
@@ -234,6 +235,14 @@ def fidelity_of(problem: Problem, override: str | None = None) -> str:
     return chosen
 
 
+def screen(problem: Problem) -> Reach:
+    """The feasibility screen of a bar's blank and limits (``optimizer.screen``); tubes and
+    strings pass (their length or density is free)."""
+    if not isinstance(problem.space, BarUndercut):
+        return Reach(True, (), "", (), (0.0, 0.0), (), (), 0)
+    return screen_bar(problem.space, problem.evaluator.goals, problem.part_file.model.theory)
+
+
 def run_design(
     problem: Problem,
     progress=None,
@@ -253,6 +262,12 @@ def run_design(
         except InputError as exc:
             raise InputError(f"{exc}; or design with --beam-only") from None
     log = EvaluationLog()  # one solve count (and shape reference) for every stage
+    reach = screen(problem)
+    if not reach.feasible:  # reported in seconds, before any search
+        log.solves += reach.solves
+        binding = (*reach.binding, reach.advice) if reach.advice else reach.binding
+        detail = reach.binding[0].split(": ", 1)[-1]
+        return Outcome(unreachable(problem.evaluator, binding, detail, log), fidelity, ())
     result = design(problem.evaluator, settings, progress, start, log)
     stages: list[tuple[Stage, CorrectedDesign]] = []
     if fidelity == "beam" or not result.converged:
