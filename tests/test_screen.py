@@ -16,14 +16,14 @@ import time
 from pathlib import Path
 
 import numpy as np
-from typer.testing import CliRunner
-
-from tonewright.cli import app
-from tonewright.design import build_problem
 from tonewright.forward import Bar, Material, constant
 from tonewright.optimizer import BarUndercut, Goal
 from tonewright.optimizer.screen import screen_bar
 from tonewright.optimizer.search import MISSED_UNREACHABLE
+from typer.testing import CliRunner
+
+from tonewright.cli import app
+from tonewright.design import build_problem
 from tonewright.partfile import load_part
 
 EXAMPLES = Path(__file__).resolve().parents[1] / "examples"
