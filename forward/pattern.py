@@ -115,7 +115,13 @@ def _mirror_map(
     values = np.vstack([B for _, B in mass])
     signs = np.concatenate([np.full(B.shape[0], -1.0 if n in _ROTATIONS else 1.0) for n, B in mass])
     target = np.vstack([B[perm] for _, B in mass]) * signs[:, None]
-    R, *_ = np.linalg.lstsq(values, target, rcond=None)
+    # normal equations (n x n): far cheaper than a least-squares factorisation of the tall
+    # matrix, and the rounding and the residual check below catch any loss of accuracy
+    gram = values.T @ values
+    try:
+        R = scipy.linalg.solve(gram, values.T @ target, assume_a="pos", check_finite=False)
+    except np.linalg.LinAlgError:
+        return None
     R = np.round(R, 8)  # a signed permutation on a symmetric hierarchical mesh
     if not np.allclose(values @ R, target, atol=1e-8 * np.abs(target).max()):
         return None

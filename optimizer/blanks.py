@@ -38,6 +38,7 @@ __all__ = ["BarNeeds", "BlankChoice", "StockRules", "blank_schedule", "clearance
 _INFEASIBLE = 1e3  # cost of a bar that cannot reach its goals with a stock size
 _UNCLEAR = 10.0  # cost of a width that leaves an unwanted mode in a band
 _CHANGE = 0.05  # cost of a change of stock between neighbours
+SPARE = 1.5  # preferred clearance, in keep-clear bands (see blank_schedule)
 
 
 @dataclass(frozen=True)
@@ -284,7 +285,11 @@ def blank_schedule(
             row.append(label)
         labels.append(row)
     capped = np.minimum(margins, 3.0)
-    cost_w = np.where(margins >= 1.0, -0.1 * capped, _UNCLEAR + (1.0 - capped))
+    # the final (spline) cut moves the unwanted modes a little from the arch's: a width is
+    # preferred with half a band to spare, accepted with less, avoided inside a band
+    cost_w = np.where(
+        margins >= SPARE, -0.1 * capped, np.where(margins >= 1.0, 1.0, _UNCLEAR + 1.0 - capped)
+    )
     cost_w = cost_w + 0.01 * np.arange(len(ws))[None, :]  # wider, all else equal
     pick_w = _chain(cost_w, ws, rules.max_width_step)
     out = []

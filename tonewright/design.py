@@ -78,6 +78,7 @@ __all__ = [
     "build_problem",
     "certify",
     "design_report",
+    "goals_and_clearance",
     "part_table",
     "run_design",
     "station_profile",
@@ -171,13 +172,14 @@ def _space(part_file: PartFile, blank: Part, table: DesignTable):
     return StringDensity(blank, table.density_range, table.control_points, table.symmetric)
 
 
-def build_problem(part_file: PartFile, base_dir=None, seed: int | None = None) -> Problem:
-    """Validate the [target] and [design] tables and set up the evaluator."""
+def goals_and_clearance(
+    part_file: PartFile, base_dir=None
+) -> tuple[ResolvedTarget, list[Goal], Clearance | None, Part]:
+    """The resolved target, the optimizer's goals, the clearance of unwanted modes and the
+    blank of a part file with a [target] (no design space, no solve)."""
     if part_file.target is None:
         raise InputError("the part file has no [target] table: say what to tune to")
     table = part_file.design
-    if seed is not None:
-        table = table.model_copy(update={"seed": seed})
     spec = part_file.material_spec(base_dir)
     coeff = spec.temp_coeff_cents_per_K if spec is not None else None
     target = resolve(part_file.target, material_temp_coeff=coeff)
@@ -188,17 +190,20 @@ def build_problem(part_file: PartFile, base_dir=None, seed: int | None = None) -
     goals = _goals(target)
     if isinstance(blank, String):
         goals = [Goal("transverse", g.order, g.f_hz, g.tolerance_cents, g.weight) for g in goals]
-    space = _space(part_file, blank, table)
     clearance = None
     if isinstance(blank, Bar) and table.clearance == "critical-band":
         fams = tuple(f for f in ("torsion", "lateral") if f not in families)
-        bands = table.clearance_bands
+        clearance = Clearance(fams, HalfCriticalBand(table.clearance_bands), table.coincidence_hz)
+    return target, goals, clearance, blank
 
-        def keep_clear_hz(f: np.ndarray) -> np.ndarray:
-            # half of a band `bands` critical bandwidths wide, centred on the partial
-            return 0.5 * bands * critical_bandwidth_hz(f)
 
-        clearance = Clearance(fams, keep_clear_hz, table.coincidence_hz)
+def build_problem(part_file: PartFile, base_dir=None, seed: int | None = None) -> Problem:
+    """Validate the [target] and [design] tables and set up the evaluator."""
+    table = part_file.design
+    if seed is not None:
+        table = table.model_copy(update={"seed": seed})
+    target, goals, clearance, blank = goals_and_clearance(part_file, base_dir)
+    space = _space(part_file, blank, table)
     theory = part_file.model.theory
     evaluator = Evaluator(space, goals, clearance, theory=theory)
     return Problem(part_file, blank, space, evaluator, target, table, base_dir)
