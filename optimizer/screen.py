@@ -64,7 +64,7 @@ def _bending_goals(goals: Sequence[Goal]) -> list[Goal]:
 
 def _sweep(space: BarUndercut, goals: Sequence[Goal], theory: str) -> tuple[np.ndarray, int]:
     """Bending frequencies (rows: uncut, then depth x flat grid) of arch cuts of ``space``."""
-    arch = replace(space, shape="arch", cutter_radius=0.0, length_range=None)
+    arch = replace(space, shape="arch", cutter_radius=0.0, length_range=None, width_range=None)
     ev = Evaluator(arch, goals, None, theory=theory)
     rows = [ev.evaluate(np.array([0.0, 0.5]), shapes=False).family_hz["bending"]]
     for d in _DEPTHS:

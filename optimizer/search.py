@@ -383,8 +383,9 @@ def unreachable(
     log = EvaluationLog() if log is None else log
     space = evaluator.space
     u = np.zeros(space.n)
-    if space.length_index is not None:
-        u[space.length_index] = 0.5
+    for k in (space.length_index, getattr(space, "width_index", None)):
+        if k is not None:
+            u[k] = 0.5
     message = (
         f"{_headline(MISSED_UNREACHABLE)}: {detail}" if detail else _headline(MISSED_UNREACHABLE)
     )

@@ -8,6 +8,7 @@ The ``[design]`` table (all optional; lengths in mm unless a unit is written):
     symmetric = true
     free_length = false       # bars: let the length set the pitch
     length_range = [340, 460] # with free_length; tubes always
+    width = [40, 65]          # bars: let the width move in this range (clears lateral modes)
     min_thickness = 4         # thinnest the bar may be anywhere (default 20 % of the blank)
     max_depth = 16            # deepest cut (default: blank - min_thickness)
     end_keep = 10             # ends kept at full thickness
@@ -157,6 +158,7 @@ def _space(part_file: PartFile, blank: Part, table: DesignTable):
             node_zone=float(table.node_zone),
             cutter_radius=float(table.cutter_radius),
             length_range=table.length_range if table.free_length else None,
+            width_range=table.width,
         )
         L_max = table.length_range[1] if table.free_length else blank.length
         if 2 * space.cut_edge(L_max) >= 0.9 * L_max:
@@ -259,6 +261,12 @@ def run_design(
     settings = SearchSettings(seed=problem.table.seed, budget=problem.table.budget)
     fidelity = fidelity_of(problem, fidelity)
     material = None
+    if fidelity == "solid" and getattr(problem.space, "width_range", None):
+        # the 3D stage is built on one width; a width that moves needs a 3D mesh per design
+        raise InputError(
+            "design.width: a width range is designed with --fidelity beam or plane; check the "
+            "result in 3D with 'tonewright verify'"
+        )
     if fidelity != "beam":  # fail before the search, not after it
         check_bar(problem.blank)
         spec = problem.part_file.material_spec(problem.base_dir)
@@ -360,9 +368,10 @@ def part_table(problem: Problem, u: np.ndarray) -> dict[str, Any]:
     L = space.length(u)
     if pf.bar is not None:
         stations = station_profile(problem, u)
+        width = space.width(u) if isinstance(space, BarUndercut) else None
         bar: dict[str, Any] = {
             "length": round(L * 1e3, 6),
-            "width": round(pf.bar.width * 1e3, 6),
+            "width": round((pf.bar.width if width is None else width) * 1e3, 6),
             "thickness": round(pf.bar.thickness * 1e3, 6),
             "profile": [[round(x * 1e3, 6), round(h * 1e3, 6)] for x, h in stations],
         }

@@ -417,11 +417,11 @@ class InstrumentFile(BaseModel):
             if k in seen:
                 raise ValueError(f"bar: {b.note} is given twice")
             seen.add(k)
-        for name in ("free_length", "length_range"):
+        for name in ("free_length", "length_range", "width"):
             if name in self.design or any(name in b.design for b in self.bar):
                 raise ValueError(
                     f"design.{name}: not used in an instrument; the anchors, the scaling rule "
-                    "or the stock schedule set each bar's length"
+                    "or the [stock] schedule set each bar's size"
                 )
         return self
 

@@ -351,6 +351,7 @@ class DesignTable(BaseModel):
     symmetric: bool = True
     free_length: bool = False
     length_range: tuple[PartLength, PartLength] | None = None
+    width: tuple[Length, Length] | None = None  # bars: the width is a design variable
     min_thickness: Length | None = None
     max_depth: Length | None = None
     end_keep: PositionLength = 0.0
@@ -368,7 +369,7 @@ class DesignTable(BaseModel):
 
     @model_validator(mode="after")
     def _ranges(self) -> DesignTable:
-        for name in ("length_range", "wall_range", "density_range"):
+        for name in ("length_range", "wall_range", "density_range", "width"):
             r = getattr(self, name)
             if r is not None and not 0 < r[0] < r[1]:
                 raise ValueError(f"{name} must be [smaller, larger] positive values")
@@ -386,6 +387,16 @@ def _check_design(design: DesignTable, part: BarTable | TubeTable | StringTable)
             raise ValueError(
                 f"design.{name} {value * 1e3:g} mm leaves nothing to cut: it must be under half "
                 f"the length ({0.5 * L * 1e3:g} mm)"
+            )
+    if design.width is not None:
+        if not isinstance(part, BarTable):
+            raise ValueError("design.width: a width range is for bars")
+        if part.width_profile:
+            raise ValueError("design.width: give a constant-width blank (drop bar.width_profile)")
+        if design.width[1] > 0.5 * L:
+            raise ValueError(
+                f"design.width: {design.width[1] * 1e3:g} mm is over half the length "
+                f"({0.5 * L * 1e3:g} mm), beyond what the beam models handle"
             )
     if isinstance(part, BarTable):
         t0 = part.thickness
