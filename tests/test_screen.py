@@ -95,3 +95,24 @@ def test_design_of_an_impossible_part_stops_before_the_search(tmp_path):
     assert payload["design"]["forward_solves"] < 200  # a screen, not a search (budget 2000)
     # the written part is the uncut blank: nothing is advised to be cut
     assert np.isclose(payload["design"]["summary"]["max_depth_mm"], 0.0)
+
+
+def test_a_stock_list_of_thicknesses_picks_the_thickest_that_passes(tmp_path):
+    from tonewright.partfile import parse_part
+
+    table = {
+        "title": "C3 from stock",
+        "material": "honduras-rosewood",
+        "bar": {"length": 500, "width": 60, "thickness": 12},
+        "target": {"fundamental": "C3", "profile": "marimba-1-4-10"},
+        "design": {"min_thickness": 6, "end_keep": 15, "thickness": [10, 12, 18]},
+    }
+    problem = build_problem(parse_part(table))
+    # 10 and 12 mm are too thin for 1:4:10 with 6 mm left (the test above), 18 mm is not
+    assert np.isclose(problem.part_file.bar.thickness, 0.018)
+    assert problem.space.blank_thickness == problem.part_file.bar.thickness
+    assert screen_bar(problem.space, problem.evaluator.goals).feasible
+    thin = dict(table, design=dict(table["design"], thickness=[10, 12]))
+    problem = build_problem(parse_part(thin))
+    assert problem.part_file.bar.thickness == 0.012  # the thickest; the screen reports it
+    assert not screen_bar(problem.space, problem.evaluator.goals).feasible

@@ -9,6 +9,7 @@ The ``[design]`` table (all optional; lengths in mm unless a unit is written):
     free_length = false       # bars: let the length set the pitch
     length_range = [340, 460] # with free_length; tubes always
     width = [40, 65]          # bars: let the width move in this range (clears lateral modes)
+    thickness = [20, 22, 25]  # bars: stock thicknesses; the thickest the screen passes is cut
     min_thickness = 4         # thinnest the bar may be anywhere (default 20 % of the blank)
     max_depth = 16            # deepest cut (default: blank - min_thickness)
     end_keep = 10             # ends kept at full thickness
@@ -199,11 +200,31 @@ def goals_and_clearance(
     return target, goals, clearance, blank
 
 
+def _stock_thickness(part_file: PartFile, base_dir) -> PartFile:
+    """The part file with the blank thickness set to the thickest stock thickness that passes
+    the feasibility screen (``optimizer.screen``); the thickest of all when none does (the
+    screen then reports the bar before any search)."""
+    _, goals, _, _ = goals_and_clearance(part_file, base_dir)
+    chosen = None
+    for t in sorted(part_file.design.thickness, reverse=True):
+        candidate = part_file.model_copy(
+            update={"bar": part_file.bar.model_copy(update={"thickness": t})}
+        )
+        space = _space(candidate, candidate.to_part(base_dir), candidate.design)
+        if chosen is None:
+            chosen = candidate
+        if screen_bar(space, goals, candidate.model.theory).feasible:
+            return candidate
+    return chosen
+
+
 def build_problem(part_file: PartFile, base_dir=None, seed: int | None = None) -> Problem:
     """Validate the [target] and [design] tables and set up the evaluator."""
     table = part_file.design
     if seed is not None:
         table = table.model_copy(update={"seed": seed})
+    if table.thickness is not None and part_file.bar is not None:
+        part_file = _stock_thickness(part_file, base_dir)
     target, goals, clearance, blank = goals_and_clearance(part_file, base_dir)
     space = _space(part_file, blank, table)
     theory = part_file.model.theory

@@ -417,7 +417,7 @@ class InstrumentFile(BaseModel):
             if k in seen:
                 raise ValueError(f"bar: {b.note} is given twice")
             seen.add(k)
-        for name in ("free_length", "length_range", "width"):
+        for name in ("free_length", "length_range", "width", "thickness"):
             if name in self.design or any(name in b.design for b in self.bar):
                 raise ValueError(
                     f"design.{name}: not used in an instrument; the anchors, the scaling rule "
