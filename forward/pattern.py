@@ -128,8 +128,48 @@ def _mirror_map(
     return R
 
 
-def _commutes(R: np.ndarray, A: np.ndarray) -> bool:
-    return bool(np.allclose(R.T @ A @ R, A, rtol=0.0, atol=1e-10 * np.abs(A).max()))
+def _signed_permutation(R: np.ndarray) -> tuple[np.ndarray, np.ndarray] | None:
+    """R as (target index, sign) per column, when it is a signed permutation."""
+    nz = np.abs(R) > 0.5
+    if not (np.all(nz.sum(axis=0) == 1) and np.all(nz.sum(axis=1) == 1)):
+        return None
+    j = np.argmax(nz, axis=0)
+    sign = R[j, np.arange(R.shape[1])]
+    if not np.allclose(np.abs(sign), 1.0):
+        return None
+    return j, np.sign(sign)
+
+
+def _commutes(j: np.ndarray, sign: np.ndarray, A: np.ndarray) -> bool:
+    """R^T A R == A for the signed permutation R (indexing, not products)."""
+    mirrored = A[np.ix_(j, j)] * np.outer(sign, sign)
+    return bool(np.allclose(mirrored, A, rtol=0.0, atol=1e-10 * np.abs(A).max()))
+
+
+def _symmetry_bases(j: np.ndarray, sign: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Orthonormal bases of R's +1 and -1 eigenspaces: a dof mapped onto itself goes to the
+    class of its sign; a pair (i, j) gives (e_i +- s e_j) / sqrt 2."""
+    n = j.size
+    plus, minus = [], []
+    for i in range(n):
+        k = int(j[i])
+        if k < i:
+            continue
+        if k == i:
+            (plus if sign[i] > 0 else minus).append({i: 1.0})
+        else:
+            r = 1.0 / np.sqrt(2.0)
+            plus.append({i: r, k: sign[i] * r})
+            minus.append({i: r, k: -sign[i] * r})
+
+    def basis(columns):
+        P = np.zeros((n, len(columns)))
+        for c, entries in enumerate(columns):
+            for row, v in entries.items():
+                P[row, c] = v
+        return P
+
+    return basis(plus), basis(minus)
 
 
 def _block(P, stiffness, mass, K_s, M_s) -> _Block:
@@ -167,10 +207,11 @@ def family_pattern(
     blocks = (_block(None, stiffness, mass, bare.K, bare.M),)
     if symmetric:
         R = _mirror_map(system, disc.quad.x, part.length, mass)
-        if R is not None and all(_commutes(R, A) for A in (system.K, system.M, bare.K, bare.M)):
+        signed = _signed_permutation(R) if R is not None else None
+        matrices = (system.K, system.M, bare.K, bare.M)
+        if signed is not None and all(_commutes(*signed, A) for A in matrices):
             n = R.shape[0]
-            P_plus = scipy.linalg.orth(0.5 * (np.eye(n) + R))
-            P_minus = scipy.linalg.orth(0.5 * (np.eye(n) - R))
+            P_plus, P_minus = _symmetry_bases(*signed)
             if P_plus.shape[1] + P_minus.shape[1] == n:
                 blocks = tuple(
                     _block(P, stiffness, mass, bare.K, bare.M) for P in (P_plus, P_minus)

@@ -62,10 +62,12 @@ def _bending_goals(goals: Sequence[Goal]) -> list[Goal]:
     return sorted((g for g in goals if g.family == "bending"), key=lambda g: g.order)
 
 
-def _sweep(space: BarUndercut, goals: Sequence[Goal], theory: str) -> tuple[np.ndarray, int]:
+def _sweep(
+    space: BarUndercut, goals: Sequence[Goal], theory: str, degree: int | None = None
+) -> tuple[np.ndarray, int]:
     """Bending frequencies (rows: uncut, then depth x flat grid) of arch cuts of ``space``."""
     arch = replace(space, shape="arch", cutter_radius=0.0, length_range=None, width_range=None)
-    ev = Evaluator(arch, goals, None, theory=theory)
+    ev = Evaluator(arch, goals, None, theory=theory, degree=degree)
     rows = [ev.evaluate(np.array([0.0, 0.5]), shapes=False).family_hz["bending"]]
     for d in _DEPTHS:
         for a in _FLATS:
@@ -73,9 +75,15 @@ def _sweep(space: BarUndercut, goals: Sequence[Goal], theory: str) -> tuple[np.n
     return np.array(rows), len(rows)
 
 
-def screen_bar(space: BarUndercut, goals: Sequence[Goal], theory: str = "timoshenko") -> Reach:
+def screen_bar(
+    space: BarUndercut,
+    goals: Sequence[Goal],
+    theory: str = "timoshenko",
+    degree: int | None = None,
+) -> Reach:
     """Screen a bar blank and its limits against bending goals (see the module docstring).
-    Goals without a first bending partial are passed (nothing to compare ratios with)."""
+    Goals without a first bending partial are passed (nothing to compare ratios with).
+    ``degree``: the mesh degree to sweep on (default: chosen by the nested estimate)."""
     bend = _bending_goals(goals)
     orders = max((g.order for g in bend), default=1)
     probe = [Goal("bending", k + 1, 1.0) for k in range(max(orders, 2))]
@@ -85,7 +93,7 @@ def screen_bar(space: BarUndercut, goals: Sequence[Goal], theory: str = "timoshe
         # free length: the pitch is the length's to set; the ratios are screened at mid length
         mid = 0.5 * sum(space.length_range)
         space = replace(space, blank=replace(space.blank, length=mid), length_range=None)
-    f, solves = _sweep(space, probe, theory)
+    f, solves = _sweep(space, probe, theory, degree)
     f1_goal = bend[0].f_hz
     goal_ratios = np.array([g.f_hz / f1_goal for g in bend[1:]])
     idx = np.array([g.order - 1 for g in bend[1:]], dtype=int)

@@ -268,7 +268,9 @@ def screen(problem: Problem) -> Reach:
     strings pass (their length or density is free)."""
     if not isinstance(problem.space, BarUndercut):
         return Reach(True, (), "", (), (0.0, 0.0), (), (), 0)
-    return screen_bar(problem.space, problem.evaluator.goals, problem.part_file.model.theory)
+    theory = problem.part_file.model.theory
+    # on the design's own mesh degree: no second degree selection
+    return screen_bar(problem.space, problem.evaluator.goals, theory, problem.evaluator.degree)
 
 
 def run_design(
