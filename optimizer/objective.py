@@ -247,11 +247,11 @@ class Evaluator:
     def _converged_degree(self, part: Part) -> int:
         """Lowest degree whose nested (p - 1 vs p) error estimate is within mesh_tol_cents
         for every mode the goals and the clearance need, on the starting design and, for a
-        cut, on a deep one (half the depth limit everywhere): the mesh is then
+        cut, on a deep one (three quarters of the depth limit everywhere): the mesh is then
         fixed for every design, and the final one is certified by ``forward.solve``."""
         parts = [part]
         if hasattr(self.space, "depth_limit"):
-            deep = np.full(self.space.n, 0.5)  # a deep cut: half the depth limit everywhere
+            deep = np.full(self.space.n, 0.75)  # a deep cut: three quarters of the limit
             if self.space.length_index is not None:
                 deep[self.space.length_index] = 0.5
             parts.append(self.space.part(deep))
