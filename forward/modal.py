@@ -303,10 +303,17 @@ def _node_index(edges: np.ndarray, x: float) -> int:
 
 
 def assemble_family(
-    part: Part, disc: Discretisation, family: str, coefficients: Mapping[str, np.ndarray]
+    part: Part,
+    disc: Discretisation,
+    family: str,
+    coefficients: Mapping[str, np.ndarray],
+    flexible: bool | None = None,
 ) -> FamilySystem:
-    """Assemble K and M of one family, apply supports, and reduce to the free dofs."""
-    flexible = family == "transverse" and not np.any(coefficients["EI"])
+    """Assemble K and M of one family, apply supports, and reduce to the free dofs.
+
+    ``flexible``: a string without bending stiffness (C0 elements); None decides from EI."""
+    if flexible is None:
+        flexible = family == "transverse" and not np.any(coefficients["EI"])
     layouts, stiffness, mass = _family_terms(family, disc.theory, disc.degree, disc, flexible)
     n = sum(lay.size for lay in layouts)
     quad = disc.quad

@@ -18,7 +18,8 @@ modes out of the band, never into coincidence, which no model predicts reliably 
 
 Modes are identified within their family by shape as well as order: the modal assurance
 criterion (Allemang, R. J. & Brown, D. L., 1982, "A correlation coefficient for modal vector
-analysis", Proc. 1st IMAC, 110-116) against the starting design's shapes; in the decoupled
+analysis", Proc. 1st IMAC, 110-116) against the shapes of the first design evaluated with
+shapes (the global search asks for eigenvalues only); in the decoupled
 beam families the two always agree, and a disagreement is reported.
 
 The ``Evaluator`` is configuration only (space, goals, clearance, mesh, weights) and never
@@ -44,6 +45,7 @@ from tonewright.forward.modal import (
     lowest_modes,
     section_coefficients,
 )
+from tonewright.forward.pattern import family_pattern, pattern_modes
 from tonewright.optimizer.sensitivity import eigenvalue_gradients
 
 __all__ = [
@@ -193,10 +195,19 @@ class Evaluator:
     def _finish(self) -> None:
         put = object.__setattr__
         put(self, "_token", next(_TOKENS))
-        fixed = None
+        fixed, patterns = None, {}
         if self.space.length_index is None:
-            fixed = self._discretise(self.space.part(self.space.start()), self.degree)
+            start = self.space.part(self.space.start())
+            fixed = self._discretise(start, self.degree)
+            coef = section_coefficients(start, fixed.quad.x)
+            mirror = bool(getattr(self.space, "symmetric", False))
+            patterns = {
+                fam: family_pattern(start, fixed, fam, coef, symmetric=mirror)
+                for fam in self.counts
+            }
         put(self, "_fixed_disc", fixed)
+        # the fixed mesh's assembly, built once: a design costs products and one eigen-solve
+        put(self, "_patterns", MappingProxyType(patterns))
 
     def _derived(self, **changes) -> Evaluator:
         new = object.__new__(Evaluator)
@@ -235,21 +246,32 @@ class Evaluator:
 
     def _converged_degree(self, part: Part) -> int:
         """Lowest degree whose nested (p - 1 vs p) error estimate is within mesh_tol_cents
-        for every mode the goals and the clearance need, on the starting design."""
+        for every mode the goals and the clearance need, on the starting design and, for a
+        cut, on a deep one (three quarters of the depth limit everywhere): the mesh is then
+        fixed for every design, and the final one is certified by ``forward.solve``."""
+        parts = [part]
+        if hasattr(self.space, "depth_limit"):
+            deep = np.full(self.space.n, 0.75)  # a deep cut: three quarters of the limit
+            if self.space.length_index is not None:
+                deep[self.space.length_index] = 0.5
+            parts.append(self.space.part(deep))
         for p in range(4, 13):
-            disc = self._discretise(part, p)
-            coef = section_coefficients(part, disc.quad.x)
-            worst = 0.0
-            for fam, count in self.counts.items():
-                system = assemble_family(part, disc, fam, coef)
-                hi = lowest_modes(system, count)[0]
-                lo = lowest_modes(system, count, subspace=np.flatnonzero(system.lower))[0]
-                n = min(hi.size, lo.size)
-                # eigenvalues: half their interval in cents is the frequencies'
-                worst = max(worst, float(np.max(0.5 * cents(lo[:n], hi[:n]))))
-            if worst <= self.mesh_tol_cents:
+            if all(self._estimate(q, p) <= self.mesh_tol_cents for q in parts):
                 return p
         return 12
+
+    def _estimate(self, part: Part, p: int) -> float:
+        disc = self._discretise(part, p)
+        coef = section_coefficients(part, disc.quad.x)
+        worst = 0.0
+        for fam, count in self.counts.items():
+            system = assemble_family(part, disc, fam, coef)
+            hi = lowest_modes(system, count)[0]
+            lo = lowest_modes(system, count, subspace=np.flatnonzero(system.lower))[0]
+            n = min(hi.size, lo.size)
+            # eigenvalues: half their interval in cents is the frequencies'
+            worst = max(worst, float(np.max(0.5 * cents(lo[:n], hi[:n]))))
+        return worst
 
     def _counts(self) -> dict[str, int]:
         counts: dict[str, int] = {}
@@ -265,11 +287,23 @@ class Evaluator:
         return counts
 
     def _discretise(self, part: Part, degree: int) -> Discretisation:
-        return discretise(part, elements=self.elements, degree=degree, theory=self.theory)
+        # a smooth cut (spline, arch) needs no nodes at its knots: the quadrature is split
+        # there, and fewer, higher-degree elements reach the same accuracy with fewer dofs
+        smooth = getattr(self.space, "shape", None) in ("spline", "arch")
+        nodes = 0 if smooth else 24
+        return discretise(
+            part,
+            elements=2 * self.elements if smooth else self.elements,
+            degree=degree,
+            theory=self.theory,
+            max_breakpoint_nodes=nodes,
+        )
 
-    def _solve(self, u: np.ndarray, log: EvaluationLog):
+    def _solve(self, u: np.ndarray, log: EvaluationLog, vectors: bool = True):
         part = self.space.part(u)
-        disc = self._fixed_disc or self._discretise(part, self.degree)
+        if self._fixed_disc is not None:
+            return self._solve_fixed(part, log, vectors)
+        disc = self._discretise(part, self.degree)
         coef = section_coefficients(part, disc.quad.x)
         top = max(g.f_hz for g in self.goals)
         out = {}
@@ -285,6 +319,28 @@ class Evaluator:
                     break
                 n += 3
             out[fam] = (lam, vec, system)
+        log.solves += 1
+        return part, disc, out
+
+    def _solve_fixed(self, part: Part, log: EvaluationLog, vectors: bool):
+        """The fast path on the fixed mesh: eigenvalues (and vectors only when asked) from
+        the cached patterns; every clearance family down to 1.3 x the top goal, 12 at most."""
+        disc = self._fixed_disc
+        coef = section_coefficients(part, disc.quad.x)
+        top = max(g.f_hz for g in self.goals)
+        below = (2.0 * np.pi * 1.3 * top) ** 2
+        clearing = self.clearance.families if self.clearance else ()
+        out = {}
+        for fam, count in self.counts.items():
+            pattern = self._patterns[fam]
+            lam, vec = pattern_modes(
+                pattern,
+                coef,
+                count,
+                vectors=vectors,
+                below_lam=below if fam in clearing else None,
+            )
+            out[fam] = (lam, vec, pattern.system)
         log.solves += 1
         return part, disc, out
 
@@ -353,17 +409,25 @@ class Evaluator:
         return found, np.array(hinge), which, bool(clear)
 
     def evaluate(
-        self, u: np.ndarray, jacobian: bool = False, log: EvaluationLog | None = None
+        self,
+        u: np.ndarray,
+        jacobian: bool = False,
+        log: EvaluationLog | None = None,
+        shapes: bool = True,
     ) -> Evaluation:
         """Residuals (and with ``jacobian`` their analytic Jacobian) at the scaled design ``u``;
-        the solves are counted, and partials tracked by shape, in ``log``."""
+        the solves are counted, and partials tracked by shape, in ``log``. ``shapes=False``
+        (the global search, which reads residuals only) skips the mode shapes and the shape
+        tracking: on a fixed mesh only eigenvalues are computed."""
         log = EvaluationLog() if log is None else log
         u = np.asarray(u, dtype=float)
+        shapes = shapes or jacobian
         key = (self._token, u.tobytes())
         cached = log.cache.get(key)
         if cached is not None and (cached.jacobian is not None or not jacobian):
-            return cached
-        part, disc, modes = self._solve(u, log)
+            if cached.shapes or not shapes:
+                return cached
+        part, disc, modes = self._solve(u, log, vectors=shapes)
         achieved, uses = self._frequencies(modes)
         errors = cents(achieved, self.goals_hz())
         scale = np.array([g.weight / g.tolerance_cents for g in self.goals])
@@ -371,8 +435,8 @@ class Evaluator:
         cw = self.clearance.weight if self.clearance else 0.0
         band = np.array([w[4] for w in which])
         residuals = np.concatenate([errors * scale, cw * 100.0 * hinge / np.maximum(band, 1e-9)])
-        shapes = {fam: vec for fam, (lam, vec, system) in modes.items()}
-        mac_ok = _track(log, shapes)
+        vectors = {fam: vec for fam, (lam, vec, system) in modes.items() if vec is not None}
+        mac_ok = _track(log, vectors) if shapes else True
         J = None
         if jacobian:
             J = self._jacobian(u, part, disc, modes, uses, which, scale, cw, log)
@@ -387,7 +451,7 @@ class Evaluator:
             hinge,
             residuals,
             J,
-            shapes,
+            vectors,
             mac_ok,
             family_hz,
             clearance_ok,

@@ -42,6 +42,7 @@ __all__ = [
     "MISSED_CUTTER",
     "MISSED_LIMIT",
     "MISSED_SHAPE",
+    "MISSED_UNREACHABLE",
     "MISSED_UNWANTED",
     "MISSED_WRITTEN_PART",
     "STATUS_MESSAGES",
@@ -53,6 +54,7 @@ __all__ = [
     "exit_code",
     "polish",
     "rechecked",
+    "unreachable",
     "verdict",
 ]
 
@@ -65,6 +67,7 @@ MISSED_SHAPE = 4
 MISSED_CERTIFIER = 5
 MISSED_CERTIFIER_UNWANTED = 6
 MISSED_WRITTEN_PART = 7
+MISSED_UNREACHABLE = 8
 STATUS_MESSAGES: dict[int, str] = {
     MET: "every partial within tolerance",
     MISSED_LIMIT: "out of reach within the limits (a limit binds)",
@@ -74,6 +77,7 @@ STATUS_MESSAGES: dict[int, str] = {
     MISSED_CERTIFIER: "the certifying model misses a goal after its corrections",
     MISSED_CERTIFIER_UNWANTED: "an unwanted mode is too near a partial in the certifying model",
     MISSED_WRITTEN_PART: "the certified solve of the written part misses the tolerance",
+    MISSED_UNREACHABLE: "out of reach of any undercut within the limits (found before searching)",
 }
 
 
@@ -147,7 +151,7 @@ def _global_search(
     radius = getattr(space, "cutter_radius", 0.0)
 
     def fitness(u: np.ndarray) -> tuple[float, Evaluation, bool]:
-        ev = evaluator.evaluate(u, log=log)
+        ev = evaluator.evaluate(u, log=log, shapes=False)  # residuals only: eigenvalues
         margin = space.curvature_margin(u)
         return _penalised(ev, margin, radius), ev, margin >= 0
 
@@ -368,6 +372,33 @@ def rechecked(
     if result.status != MET or within:
         return result
     return replace(result, status=MISSED_WRITTEN_PART, message=STATUS_MESSAGES[MISSED_WRITTEN_PART])
+
+
+def unreachable(
+    evaluator: Evaluator, binding: Sequence[str], detail: str, log: EvaluationLog | None = None
+) -> DesignResult:
+    """The result for a part the feasibility screen (``optimizer.screen``) ruled out: no
+    search is run; the uncut blank (every depth variable 0) is returned with the limits
+    that bind."""
+    log = EvaluationLog() if log is None else log
+    space = evaluator.space
+    u = np.zeros(space.n)
+    for k in (space.length_index, getattr(space, "width_index", None)):
+        if k is not None:
+            u[k] = 0.5
+    message = (
+        f"{_headline(MISSED_UNREACHABLE)}: {detail}" if detail else _headline(MISSED_UNREACHABLE)
+    )
+    return DesignResult(
+        u=u,
+        evaluation=evaluator.evaluate(u, log=log),
+        status=MISSED_UNREACHABLE,
+        message=message,
+        binding=tuple(binding),
+        solves=log.solves,
+        attempts=0,
+        evaluator=evaluator,
+    )
 
 
 def _certified_gap(evaluator: Evaluator, u: np.ndarray, log: EvaluationLog) -> float:

@@ -11,6 +11,8 @@ c = L/2 - e, s = 0 at the centre; asymmetric: s = (x - e) / (L - 2 e)). Depth sh
 - ``arch``: a flat bottom of depth d over |s| <= a, then a C2 quintic ramp
   (1 - 10 t^3 + 15 t^4 - 6 t^5) up to the uncut surface;
 - ``steps``: k flat cuts of equal width and independent depth, as cut with a saw and router.
+Optional free width: a variable after the shape's maps to [b_min, b_max] (constant along the
+bar); bending barely depends on it, so it moves the lateral and torsion modes (the clearance).
 Optional free length: the last variable maps to [L_min, L_max]; the cut region scales with it.
 
 Tubes: optional free length, optional wall-thickness spline. Strings: a linear-density spline
@@ -29,7 +31,7 @@ from typing import Literal
 
 import numpy as np
 from scipy.interpolate import BSpline
-from tonewright.forward.geometry import Bar, Part, String, Tube
+from tonewright.forward.geometry import Bar, Part, String, Tube, constant
 from tonewright.forward.modal import bar_coefficients, hole_data, tube_coefficients
 
 __all__ = [
@@ -97,6 +99,7 @@ class BarUndercut:
     node_zone: float = 0.0  # uncut width around each mode-1 node
     cutter_radius: float = 0.0  # minimum concave radius of the cut surface
     length_range: tuple[float, float] | None = None  # free length when given
+    width_range: tuple[float, float] | None = None  # free (constant) width when given
 
     # -- variables ------------------------------------------------------------------------
     @property
@@ -114,11 +117,17 @@ class BarUndercut:
 
     @property
     def n(self) -> int:
-        return self.n_shape + (1 if self.length_range else 0)
+        return self.n_shape + (1 if self.width_range else 0) + (1 if self.length_range else 0)
+
+    @property
+    def width_index(self) -> int | None:
+        return self.n_shape if self.width_range else None
 
     @property
     def length_index(self) -> int | None:
-        return self.n_shape if self.length_range else None
+        if not self.length_range:
+            return None
+        return self.n_shape + (1 if self.width_range else 0)
 
     def names(self) -> list[str]:
         if self.shape == "arch":
@@ -126,7 +135,18 @@ class BarUndercut:
         else:
             label = "depth at control point" if self.shape == "spline" else "depth of step"
             base = [f"{label} {k + 1}" for k in range(self.n_shape)]
-        return base + (["length"] if self.length_range else [])
+        return (
+            base
+            + (["width"] if self.width_range else [])
+            + (["length"] if self.length_range else [])
+        )
+
+    def width(self, u: np.ndarray) -> float | None:
+        """The designed width (m), or None when the blank's width is kept."""
+        if not self.width_range:
+            return None
+        lo, hi = self.width_range
+        return float(lo + np.real(u[self.n_shape]) * (hi - lo))
 
     def start(self) -> np.ndarray:
         """A middling cut: half the allowed depth, flat half-width 0.5, mid length."""
@@ -139,7 +159,7 @@ class BarUndercut:
         if not self.length_range:
             return self.blank.length
         lo, hi = self.length_range
-        return float(lo + np.real(u[self.n_shape]) * (hi - lo))
+        return float(lo + np.real(u[self.length_index]) * (hi - lo))
 
     def cut_edge(self, length: float) -> float:
         """Distance e from each end where the cut region begins."""
@@ -232,19 +252,28 @@ class BarUndercut:
 
         field = DesignField(thickness, self.kinks(u))
         blank = self.blank
+        if self.width_range:
+            blank = replace(blank, width=constant(self.width(u)))
         return replace(blank, length=L, thickness=field)
 
     def coefficient_jacobian(
         self, u: np.ndarray, part: Part, x: np.ndarray
     ) -> dict[str, np.ndarray]:
-        """d(section coefficient)/du_k at x for the shape variables (length excluded)."""
+        """d(section coefficient)/du_k at x for the shape variables and the width (length
+        excluded), in the order of the variables."""
         _, dDepth = self.depth_and_jacobian(u, x)
         m = part.material
         chord, z = hole_data(part, x)
-        h = part.thickness(x) + 1j * _H
-        c = bar_coefficients(part.width(x), h, chord, z, m.E, m.G, m.rho, m.nu, m.shear_ratio)
+        b, t = part.width(x), part.thickness(x)
+        c = bar_coefficients(b, t + 1j * _H, chord, z, m.E, m.G, m.rho, m.nu, m.shear_ratio)
         # thickness = blank - depth, so d/du = -dc/dh * ddepth/du
-        return {name: -(np.imag(v) / _H) * dDepth for name, v in c.items()}
+        out = {name: -(np.imag(v) / _H) * dDepth for name, v in c.items()}
+        if self.width_range:
+            lo, hi = self.width_range
+            cb = bar_coefficients(b + 1j * _H, t, chord, z, m.E, m.G, m.rho, m.nu, m.shear_ratio)
+            for name, v in cb.items():
+                out[name] = np.vstack([out[name], (hi - lo) * np.imag(v)[None, :] / _H])
+        return out
 
     def curvature_margin(self, u: np.ndarray, samples: int = 400) -> float:
         """Smallest (1/R_cutter + depth'') over the cut, in 1/m; negative where a cutter of the
@@ -275,6 +304,11 @@ class BarUndercut:
             lo, hi = self.length_range
             if L <= lo + 0.02 * (hi - lo) or L >= hi - 0.02 * (hi - lo):
                 out.append(f"length range ({lo * 1e3:g} to {hi * 1e3:g} mm)")
+        if self.width_range:
+            v = float(np.real(u[self.n_shape]))
+            if v <= 0.02 or v >= 0.98:
+                lo, hi = self.width_range
+                out.append(f"width range ({lo * 1e3:g} to {hi * 1e3:g} mm)")
         if self.cutter_radius > 0 and self.curvature_margin(u) < 0.05 / self.cutter_radius:
             out.append(f"cutter radius ({self.cutter_radius * 1e3:g} mm)")
         return out
@@ -285,7 +319,9 @@ class BarUndercut:
         x = np.linspace(0.0, L, 4001)
         depth = self.depth_and_jacobian(u, x)[0]
         cut = x[depth > CUT_MIN_DEPTH]  # where the cut really starts, not its allowed region
+        extra = {"width_mm": self.width(u) * 1e3} if self.width_range else {}
         return {
+            **extra,
             "length_mm": L * 1e3,
             "cut_starts_mm": float(cut[0]) * 1e3 if cut.size else e * 1e3,
             "cut_ends_mm": float(cut[-1]) * 1e3 if cut.size else (L - e) * 1e3,

@@ -75,6 +75,11 @@ def test_every_readme_file_is_valid(block):
         parse_instrument(raw)
     elif "name" in raw:
         MaterialFile.model_validate(raw)
+    elif set(raw) == {"stock"}:  # a fragment: the stock table of an instrument file
+        stub = {"title": "stub", "lowest": "F4", "highest": "F5", "material": "padauk"}
+        parse_instrument(
+            stub | {"profile": [{"from": "F4", "to": "F5", "profile": "fundamental"}]} | raw
+        )
     elif set(raw) == {"support"}:  # a fragment: supports of the demo bar
         parse_part(
             {"material": "honduras-rosewood", "bar": {"length": 400, "width": 60, "thickness": 22}}

@@ -8,6 +8,8 @@ The ``[design]`` table (all optional; lengths in mm unless a unit is written):
     symmetric = true
     free_length = false       # bars: let the length set the pitch
     length_range = [340, 460] # with free_length; tubes always
+    width = [40, 65]          # bars: let the width move in this range (clears lateral modes)
+    thickness = [20, 22, 25]  # bars: stock thicknesses; the thickest the screen passes is cut
     min_thickness = 4         # thinnest the bar may be anywhere (default 20 % of the blank)
     max_depth = 16            # deepest cut (default: blank - min_thickness)
     end_keep = 10             # ends kept at full thickness
@@ -58,7 +60,8 @@ from tonewright.optimizer import (
     corrected_design,
     design,
 )
-from tonewright.optimizer.search import rechecked
+from tonewright.optimizer.screen import Reach, screen_bar
+from tonewright.optimizer.search import rechecked, unreachable
 from tonewright.optimizer.spaces import undercut_terms, undercut_thickness
 from tonewright.partfile import DesignTable, PartFile, parse_part
 from tonewright.tuning import ResolvedTarget, resolve
@@ -78,6 +81,7 @@ __all__ = [
     "build_problem",
     "certify",
     "design_report",
+    "goals_and_clearance",
     "part_table",
     "run_design",
     "station_profile",
@@ -159,6 +163,7 @@ def _space(part_file: PartFile, blank: Part, table: DesignTable):
             node_zone=float(table.node_zone),
             cutter_radius=float(table.cutter_radius),
             length_range=table.length_range if table.free_length else None,
+            width_range=table.width,
         )
         L_max = table.length_range[1] if table.free_length else blank.length
         if 2 * space.cut_edge(L_max) >= 0.9 * L_max:
@@ -174,13 +179,14 @@ def _space(part_file: PartFile, blank: Part, table: DesignTable):
     return StringDensity(blank, table.density_range, table.control_points, table.symmetric)
 
 
-def build_problem(part_file: PartFile, base_dir=None, seed: int | None = None) -> Problem:
-    """Validate the [target] and [design] tables and set up the evaluator."""
+def goals_and_clearance(
+    part_file: PartFile, base_dir=None
+) -> tuple[ResolvedTarget, list[Goal], Clearance | None, Part]:
+    """The resolved target, the optimizer's goals, the clearance of unwanted modes and the
+    blank of a part file with a [target] (no design space, no solve)."""
     if part_file.target is None:
         raise InputError("the part file has no [target] table: say what to tune to")
     table = part_file.design
-    if seed is not None:
-        table = table.model_copy(update={"seed": seed})
     spec = part_file.material_spec(base_dir)
     coeff = spec.temp_coeff_cents_per_K if spec is not None else None
     target = resolve(part_file.target, material_temp_coeff=coeff)
@@ -191,17 +197,40 @@ def build_problem(part_file: PartFile, base_dir=None, seed: int | None = None) -
     goals = _goals(target)
     if isinstance(blank, String):
         goals = [Goal("transverse", g.order, g.f_hz, g.tolerance_cents, g.weight) for g in goals]
-    space = _space(part_file, blank, table)
     clearance = None
     if isinstance(blank, Bar) and table.clearance == "critical-band":
         fams = tuple(f for f in ("torsion", "lateral") if f not in families)
-        bands = table.clearance_bands
+        clearance = Clearance(fams, HalfCriticalBand(table.clearance_bands), table.coincidence_hz)
+    return target, goals, clearance, blank
 
-        def keep_clear_hz(f: np.ndarray) -> np.ndarray:
-            # half of a band `bands` critical bandwidths wide, centred on the partial
-            return 0.5 * bands * critical_bandwidth_hz(f)
 
-        clearance = Clearance(fams, keep_clear_hz, table.coincidence_hz)
+def _stock_thickness(part_file: PartFile, base_dir) -> PartFile:
+    """The part file with the blank thickness set to the thickest stock thickness that passes
+    the feasibility screen (``optimizer.screen``); the thickest of all when none does (the
+    screen then reports the bar before any search)."""
+    _, goals, _, _ = goals_and_clearance(part_file, base_dir)
+    chosen = None
+    for t in sorted(part_file.design.thickness, reverse=True):
+        candidate = part_file.model_copy(
+            update={"bar": part_file.bar.model_copy(update={"thickness": t})}
+        )
+        space = _space(candidate, candidate.to_part(base_dir), candidate.design)
+        if chosen is None:
+            chosen = candidate
+        if screen_bar(space, goals, candidate.model.theory).feasible:
+            return candidate
+    return chosen
+
+
+def build_problem(part_file: PartFile, base_dir=None, seed: int | None = None) -> Problem:
+    """Validate the [target] and [design] tables and set up the evaluator."""
+    table = part_file.design
+    if seed is not None:
+        table = table.model_copy(update={"seed": seed})
+    if table.thickness is not None and part_file.bar is not None:
+        part_file = _stock_thickness(part_file, base_dir)
+    target, goals, clearance, blank = goals_and_clearance(part_file, base_dir)
+    space = _space(part_file, blank, table)
     theory = part_file.model.theory
     evaluator = Evaluator(space, goals, clearance, theory=theory)
     return Problem(part_file, blank, space, evaluator, target, table, base_dir)
@@ -238,6 +267,16 @@ def fidelity_of(problem: Problem, override: str | None = None) -> str:
     return chosen
 
 
+def screen(problem: Problem) -> Reach:
+    """The feasibility screen of a bar's blank and limits (``optimizer.screen``); tubes and
+    strings pass (their length or density is free)."""
+    if not isinstance(problem.space, BarUndercut):
+        return Reach(True, (), "", (), (0.0, 0.0), (), (), 0)
+    theory = problem.part_file.model.theory
+    # on the design's own mesh degree: no second degree selection
+    return screen_bar(problem.space, problem.evaluator.goals, theory, problem.evaluator.degree)
+
+
 def run_design(
     problem: Problem,
     progress=None,
@@ -249,6 +288,12 @@ def run_design(
     settings = SearchSettings(seed=problem.table.seed, budget=problem.table.budget)
     fidelity = fidelity_of(problem, fidelity)
     material = None
+    if fidelity == "solid" and getattr(problem.space, "width_range", None):
+        # the 3D stage is built on one width; a width that moves needs a 3D mesh per design
+        raise InputError(
+            "design.width: a width range is designed with --fidelity beam or plane; check the "
+            "result in 3D with 'tonewright verify'"
+        )
     if fidelity != "beam":  # fail before the search, not after it
         check_bar(problem.blank)
         spec = problem.part_file.material_spec(problem.base_dir)
@@ -257,6 +302,12 @@ def run_design(
         except InputError as exc:
             raise InputError(f"{exc}; or design with --beam-only") from None
     log = EvaluationLog()  # one solve count (and shape reference) for every stage
+    reach = screen(problem)
+    if not reach.feasible:  # reported in seconds, before any search
+        log.solves += reach.solves
+        binding = (*reach.binding, reach.advice) if reach.advice else reach.binding
+        detail = reach.binding[0].split(": ", 1)[-1]
+        return Outcome(unreachable(problem.evaluator, binding, detail, log), fidelity, ())
     result = design(problem.evaluator, settings, progress, start, log)
     stages: list[tuple[Stage, CorrectedDesign]] = []
     if fidelity == "beam" or not result.converged:
@@ -426,9 +477,10 @@ def part_table(problem: Problem, u: np.ndarray) -> dict[str, Any]:
     space = problem.space
     L = space.length(u)
     if pf.bar is not None:
+        width = space.width(u) if isinstance(space, BarUndercut) else None
         bar: dict[str, Any] = {
             "length": round(L * 1e3, 6),
-            "width": round(pf.bar.width * 1e3, 6),
+            "width": round((pf.bar.width if width is None else width) * 1e3, 6),
             "thickness": round(pf.bar.thickness * 1e3, 6),
             "undercut": undercut_table(problem, u),
         }

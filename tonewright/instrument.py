@@ -16,6 +16,9 @@ Equations
   ``log d(m) = log d_a + (m - m_a) / (m_b - m_a) * (log d_b - log d_a)``.
   A uniform free-free bar has ``f ~ h / L^2`` (Euler-Bernoulli), so a length law ``L ~ f^-1/2``
   at constant thickness is exactly such a power law: halving every 24 semitones.
+- Dimensions from stock (:class:`StockTable`): ``optimizer.blanks.blank_schedule`` chooses a
+  thickness and a width from the stock for every bar and lengths on a smooth curve, within
+  the keyboard's rules (never thicker or wider toward the treble), and says why.
 - Dimensions from a scaling rule (:func:`scaled_dimension`): ``d(m) = d_0 2^(-(m - m_0) / N)``,
   ``N`` the number of semitones over which ``d`` halves (no ``N``: constant).
 - Blanks (:func:`blank_volume_m3`): rough sizes are the finished blank plus the trimming
@@ -46,7 +49,14 @@ The file (lengths in mm unless a unit is written; notes in scientific pitch nota
     length = 380
     width = 60
     thickness = 22
-    [scaling]                     # ... or instead a rule: sizes at one note, and the
+    [stock]                       # ... or neither: the tool sizes the blanks from stock
+    thicknesses = [20, 22, 25]    # or thickness_range = [18, 26] (thickness_step = 1)
+    width_range = [30, 65]        # or widths = [35, 40, 45] (width_step = 2.5 for a range)
+    length_range = [150, 600]     # the lengths the keyboard may use
+    max_width_step = 5            # optional: largest change between neighbouring bars
+    max_thickness_step = 3
+    share_thickness = "octave"    # optional: bars of one octave share a thickness
+    [scaling]                     # ... or a rule: sizes at one note, and the
     note = "C4"                   # semitones over which each halves (none: constant)
     length = 380
     width = 60
@@ -89,6 +99,7 @@ from pydantic import (
 from tonewright.acoustics.pitch import hz_to_note, note_to_midi
 from tonewright.errors import InputError, from_validation_error, read_text_input
 from tonewright.materials import MaterialSpec, resolve_material
+from tonewright.optimizer.blanks import BarNeeds, BlankChoice, StockRules, blank_schedule
 from tonewright.partfile import DesignTable, parse_part
 from tonewright.tuning import ResolvedTarget, resolve
 from tonewright.units import Length, PositionLength
@@ -106,6 +117,7 @@ __all__ = [
     "ResonatorPlan",
     "ResonatorsTable",
     "ScalingTable",
+    "StockTable",
     "blank_volume_m3",
     "end_correction_m",
     "interpolate_log_frequency",
@@ -244,6 +256,54 @@ class ScalingTable(BaseModel):
     thickness_halves_every: float | None = Field(default=None, gt=0, le=1000, allow_inf_nan=False)
 
 
+MAX_STOCK = 60  # stock sizes per dimension: the schedule solves every bar on each thickness
+
+
+class StockTable(BaseModel):
+    """``[stock]``: the sizes a maker can buy and the keyboard's rules (mm unless a unit is
+    written). Thickness and width each as a list or as a range with a step."""
+
+    model_config = _FROZEN
+    thicknesses: tuple[Length, ...] | None = None
+    thickness_range: tuple[Length, Length] | None = None
+    thickness_step: Length = 0.001
+    widths: tuple[Length, ...] | None = None
+    width_range: tuple[Length, Length] | None = None
+    width_step: Length = 0.0025
+    length_range: tuple[Length, Length] = (0.100, 1.000)
+    max_thickness_step: Length | None = None
+    max_width_step: Length | None = None
+    share_thickness: Literal["none", "octave"] = "none"
+
+    @model_validator(mode="after")
+    def _sizes(self) -> StockTable:
+        for name in ("thickness", "width"):
+            self.sizes(name)
+        lo, hi = self.length_range
+        if hi <= lo:
+            raise ValueError("length_range: give [shortest, longest] with shortest < longest")
+        return self
+
+    def sizes(self, name: str) -> tuple[float, ...]:
+        """The stock sizes of ``name`` ("thickness" or "width"), metres, ascending."""
+        listed = self.thicknesses if name == "thickness" else self.widths
+        span = getattr(self, f"{name}_range")
+        if (listed is None) == (span is None):
+            plural = "thicknesses" if name == "thickness" else "widths"
+            raise ValueError(f"give {plural} = [...] or {name}_range = [min, max], not both")
+        if listed is not None:
+            values = sorted(set(listed))
+        else:
+            lo, hi = span
+            if hi < lo:
+                raise ValueError(f"{name}_range: give [min, max] with min <= max")
+            step = getattr(self, f"{name}_step")
+            values = list(np.round(np.arange(lo, hi + 1e-9, step), 7))  # 0.1 um: exact mm
+        if not values or len(values) > MAX_STOCK:
+            raise ValueError(f"{name}: give 1 to {MAX_STOCK} stock sizes (got {len(values)})")
+        return tuple(float(v) for v in values)
+
+
 class BarOverride(BaseModel):
     """``[[bar]]``: one note's own sizes, profile or design limits (merged over the shared)."""
 
@@ -302,6 +362,7 @@ class InstrumentFile(BaseModel):
     profile: tuple[ProfileRange, ...] = Field(min_length=1)
     anchor: tuple[AnchorTable, ...] = ()
     scaling: ScalingTable | None = None
+    stock: StockTable | None = None
     design: dict[str, Any] = Field(default_factory=dict)
     attempts: int = Field(default=3, ge=1, le=10)
     bar: tuple[BarOverride, ...] = ()
@@ -317,8 +378,12 @@ class InstrumentFile(BaseModel):
             raise ValueError(
                 f"{hi - lo + 1} bars from {self.lowest} to {self.highest}; at most {MAX_BARS}"
             )
-        if (len(self.anchor) > 0) == (self.scaling is not None):
-            raise ValueError("give the blank sizes either as [[anchor]] tables or as [scaling]")
+        given = (len(self.anchor) > 0) + (self.scaling is not None) + (self.stock is not None)
+        if given != 1:
+            raise ValueError(
+                "give the blank sizes either as [[anchor]] tables or as [scaling], or let the "
+                "tool size them from [stock] (one of the three)"
+            )
         if self.anchor:
             m = [note_to_midi(a.note) for a in self.anchor]
             if len(m) < 2 or len(set(m)) != len(m):
@@ -352,11 +417,11 @@ class InstrumentFile(BaseModel):
             if k in seen:
                 raise ValueError(f"bar: {b.note} is given twice")
             seen.add(k)
-        for name in ("free_length", "length_range"):
+        for name in ("free_length", "length_range", "width", "thickness"):
             if name in self.design or any(name in b.design for b in self.bar):
                 raise ValueError(
-                    f"design.{name}: not used in an instrument; the anchors or the scaling rule "
-                    "set each bar's length"
+                    f"design.{name}: not used in an instrument; the anchors, the scaling rule "
+                    "or the [stock] schedule set each bar's size"
                 )
         return self
 
@@ -419,6 +484,7 @@ class InstrumentPlan:
     resonators: tuple[ResonatorPlan, ...]
     resonator_temperature_c: float | None
     resonator_end: str | None
+    schedule: tuple[BlankChoice, ...] = ()  # the blanks the tool chose from [stock]
 
     def bar(self, note: str) -> BarPlan:
         for b in self.bars:
@@ -463,27 +529,24 @@ def _resolve_material_entry(material: str | Mapping[str, Any], base_dir: Path | 
     return resolve_material(value), value
 
 
-def plan_instrument(spec: InstrumentFile, base_dir: Path | None = None) -> InstrumentPlan:
-    """One validated part table per note, the blanks and the resonators."""
-    material, material_value = _resolve_material_entry(spec.material, base_dir)
-    lo, hi = note_to_midi(spec.lowest), note_to_midi(spec.highest)
-    midi = np.arange(lo, hi + 1)
-    dims = _dimensions(spec, midi)
-    overrides = {note_to_midi(b.note): (i, b) for i, b in enumerate(spec.bar)}
+def _bar_tables(spec: InstrumentFile, midi: np.ndarray, material_value):
+    """Per note: its name, profile, [design] and [target] tables and size overrides."""
+    overrides = {note_to_midi(b.note): b for b in spec.bar}
     profiles = {
         k: p.profile
         for p in spec.profile
         for k in range(note_to_midi(p.from_), note_to_midi(p.to) + 1)
     }
-    bars = []
-    for j, m in enumerate(midi.tolist()):
+    out = []
+    for m in midi.tolist():
         note = midi_to_note(m, spec.a4_hz)
-        size = {name: float(dims[name][j]) for name in dims}
         profile = profiles[m]
         design = dict(spec.design)
+        sizes: dict[str, float] = {}
         if m in overrides:
-            _, o = overrides[m]
-            size.update({k: getattr(o, k) for k in size if getattr(o, k) is not None})
+            o = overrides[m]
+            sizes = {k: getattr(o, k) for k in ("length", "width", "thickness")}
+            sizes = {k: v for k, v in sizes.items() if v is not None}
             profile = o.profile or profile
             design.update(o.design)
         target_table: dict[str, Any] = {
@@ -494,13 +557,91 @@ def plan_instrument(spec: InstrumentFile, base_dir: Path | None = None) -> Instr
         if spec.stretch_cents_per_octave:
             target_table["stretch_cents_per_octave"] = spec.stretch_cents_per_octave
             target_table["stretch_from"] = spec.stretch_from
-        part = {
-            "title": f"{spec.title}, {note}",
-            "material": material_value,
-            "bar": {k: _mm(size[k]) for k in ("length", "width", "thickness")},
-            "target": target_table,
-            "design": design,
+        out.append((m, note, profile, design, target_table, sizes))
+    return out
+
+
+def _part_table(spec, note, material_value, size, target_table, design) -> dict[str, Any]:
+    return {
+        "title": f"{spec.title}, {note}",
+        "material": material_value,
+        "bar": {k: _mm(size[k]) for k in ("length", "width", "thickness")},
+        "target": target_table,
+        "design": design,
+    }
+
+
+def _stock_schedule(
+    spec: InstrumentFile, tables, material_value, base_dir: Path | None, progress=None
+) -> tuple[BlankChoice, ...]:
+    """The blanks ``optimizer.blanks`` proposes from the [stock] table, for every bar."""
+    from threadpoolctl import threadpool_limits
+
+    from tonewright.design import goals_and_clearance
+
+    stock = spec.stock
+    needs = []
+    material = None
+    theory = "timoshenko"
+    provisional = {"length": 0.4, "width": 0.05, "thickness": 0.02}  # only to read the tables
+    for m, note, _profile, design, target_table, _sizes in tables:
+        part = _part_table(spec, note, material_value, provisional, target_table, design)
+        part_file = parse_part(part, where=f"bar {note}")
+        _, goals, clearance, blank = goals_and_clearance(part_file, base_dir)
+        table = part_file.design
+        material = blank.material
+        theory = part_file.model.theory
+        needs.append(
+            BarNeeds(
+                note=note,
+                midi=m,
+                goals=tuple(goals),
+                clearance=clearance,
+                min_thickness=table.min_thickness,
+                max_depth=table.max_depth or 0.0,
+                end_keep=float(table.end_keep),
+                node_zone=float(table.node_zone),
+            )
+        )
+    groups = None
+    if stock.share_thickness == "octave":
+        groups = tuple(m // 12 for m, *_ in tables)
+    rules = StockRules(
+        thicknesses=stock.sizes("thickness"),
+        widths=stock.sizes("width"),
+        length_range=stock.length_range,
+        max_thickness_step=stock.max_thickness_step,
+        max_width_step=stock.max_width_step,
+        groups=groups,
+    )
+    with threadpool_limits(limits=1, user_api="blas"):  # many tiny eigenproblems
+        return blank_schedule(needs, material, rules, theory, progress)
+
+
+def plan_instrument(
+    spec: InstrumentFile, base_dir: Path | None = None, progress=None
+) -> InstrumentPlan:
+    """One validated part table per note, the blanks and the resonators. With a [stock]
+    table the blanks are sized by the tool first (``progress(text)`` is told of each step)."""
+    material, material_value = _resolve_material_entry(spec.material, base_dir)
+    lo, hi = note_to_midi(spec.lowest), note_to_midi(spec.highest)
+    midi = np.arange(lo, hi + 1)
+    tables = _bar_tables(spec, midi, material_value)
+    schedule: tuple[BlankChoice, ...] = ()
+    if spec.stock is not None:
+        schedule = _stock_schedule(spec, tables, material_value, base_dir, progress)
+        dims = {
+            "length": np.array([c.length for c in schedule]),
+            "width": np.array([c.width for c in schedule]),
+            "thickness": np.array([c.thickness for c in schedule]),
         }
+    else:
+        dims = _dimensions(spec, midi)
+    bars = []
+    for j, (m, note, profile, design, target_table, sizes) in enumerate(tables):
+        size = {name: float(dims[name][j]) for name in dims}
+        size.update(sizes)
+        part = _part_table(spec, note, material_value, size, target_table, design)
         # every bar is a valid part file: its [design] and [target] validated here, once
         part_file = parse_part(part, where=f"bar {note}")
         target = resolve(part_file.target)
@@ -532,6 +673,7 @@ def plan_instrument(spec: InstrumentFile, base_dir: Path | None = None) -> Instr
         resonators=resonators,
         resonator_temperature_c=r.temperature_c if r else None,
         resonator_end=r.end if r else None,
+        schedule=schedule,
     )
 
 

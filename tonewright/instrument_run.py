@@ -76,6 +76,8 @@ __all__ = [
     "InstrumentReport",
     "RunPlan",
     "bar_fingerprint",
+    "blanks_csv",
+    "blanks_figure",
     "check_out_dir",
     "cut_list_csv",
     "design_bar",
@@ -468,6 +470,70 @@ def cut_list_csv(plan: InstrumentPlan) -> str:
     return buf.getvalue()
 
 
+BLANKS_COLUMNS = (
+    "note",
+    "length_mm",
+    "width_mm",
+    "thickness_mm",
+    "reachable",
+    "modes_clear",
+    "why_thickness",
+    "why_width",
+    "binding",
+    "nearest_blank",
+)
+
+
+def blanks_csv(plan: InstrumentPlan) -> str:
+    """The blank schedule the tool chose from [stock]: sizes and the reason for each."""
+    buf = io.StringIO()
+    w = csv.writer(buf, lineterminator="\n")
+    w.writerow(BLANKS_COLUMNS)
+    for c in plan.schedule:
+        w.writerow(
+            [
+                c.note,
+                f"{c.length * 1e3:.1f}",
+                f"{c.width * 1e3:.1f}",
+                f"{c.thickness * 1e3:.1f}",
+                "yes" if c.reachable else "no",
+                "yes" if c.clear else "no",
+                c.thickness_reason,
+                c.width_reason,
+                "; ".join(c.binding),
+                c.advice,
+            ]
+        )
+    return buf.getvalue()
+
+
+def blanks_figure(plan: InstrumentPlan):
+    """Length, width and thickness of the schedule along the keyboard; bars the pre-design
+    could not reach are marked."""
+    import matplotlib.pyplot as plt
+
+    notes = [c.note for c in plan.schedule]
+    x = np.arange(len(notes))
+    fig, (top, bottom) = plt.subplots(2, 1, figsize=(9, 6), sharex=True)
+    top.plot(x, [c.length * 1e3 for c in plan.schedule], "o-", color="#5b4630", markersize=3)
+    top.set_ylabel("blank length (mm)")
+    bottom.step(x, [c.width * 1e3 for c in plan.schedule], where="mid", color="#1b6f8a")
+    bottom.step(x, [c.thickness * 1e3 for c in plan.schedule], where="mid", color="#b5651d")
+    bottom.plot([], [], color="#1b6f8a", label="width")
+    bottom.plot([], [], color="#b5651d", label="thickness")
+    bad = [i for i, c in enumerate(plan.schedule) if not (c.reachable and c.clear)]
+    if bad:
+        ys = [plan.schedule[i].thickness * 1e3 for i in bad]
+        bottom.plot(bad, ys, "x", color="#c0392b", markersize=9, label="out of reach / unclear")
+    bottom.set_ylabel("mm (stock sizes)")
+    bottom.legend(loc="upper right", fontsize=8, frameon=False)
+    _note_axis(top, notes)
+    _note_axis(bottom, notes)
+    top.set_title(f"{plan.title}: blanks sized from stock")
+    fig.tight_layout()
+    return fig
+
+
 def resonators_csv(plan: InstrumentPlan) -> str:
     """One stopped tube per bar, tuned to the bar's target fundamental."""
     buf = io.StringIO()
@@ -633,13 +699,15 @@ def plan_run(
     gcode: bool = False,
     paper: str = "A4",
     fidelity: str | None = None,
+    progress: Callable[[str], None] | None = None,
 ) -> RunPlan:
     """Validate the instrument file and the options, mark ``out`` as this command's, and sort
-    the bars into those to design, to re-draw and to reuse (the fingerprints)."""
+    the bars into those to design, to re-draw and to reuse (the fingerprints). With a [stock]
+    table the blanks are sized first (``progress(text)`` is told of each step)."""
     spec, base = load_instrument(file)
-    plan = plan_instrument(spec, base)
     if fidelity is not None and fidelity not in ("beam", "plane", "solid"):
         raise InputError(f"--fidelity {fidelity!r}: choose beam, plane or solid")
+    plan = plan_instrument(spec, base, progress)
     n_workers = jobs if jobs is not None else (os.cpu_count() or 1)
     if n_workers < 1:
         raise InputError(f"--jobs {jobs}: give 1 or more")
@@ -769,6 +837,11 @@ def write_instrument(report: InstrumentReport, out: Path) -> None:
         for fmt in ("png", "svg"):
             data = figure_bytes(make(plan, rows), fmt)
             atomic_write_bytes(out / f"{name}.{fmt}", data, overwrite=True)
+    if plan.schedule:
+        atomic_write_text(out / "blanks.csv", blanks_csv(plan), overwrite=True)
+        for fmt in ("png", "svg"):
+            data = figure_bytes(blanks_figure(plan), fmt)
+            atomic_write_bytes(out / f"blanks.{fmt}", data, overwrite=True)
     last = {
         "designed": list(report.designed),
         "shop_only": list(report.shop_only),

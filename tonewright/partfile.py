@@ -439,6 +439,8 @@ class DesignTable(BaseModel):
     symmetric: bool = True
     free_length: bool = False
     length_range: tuple[PartLength, PartLength] | None = None
+    width: tuple[Length, Length] | None = None  # bars: the width is a design variable
+    thickness: tuple[Length, ...] | None = None  # bars: stock thicknesses to choose from
     min_thickness: Length | None = None
     max_depth: Length | None = None
     end_keep: PositionLength = 0.0
@@ -456,7 +458,7 @@ class DesignTable(BaseModel):
 
     @model_validator(mode="after")
     def _ranges(self) -> DesignTable:
-        for name in ("length_range", "wall_range", "density_range"):
+        for name in ("length_range", "wall_range", "density_range", "width"):
             r = getattr(self, name)
             if r is not None and not 0 < r[0] < r[1]:
                 raise ValueError(f"{name} must be [smaller, larger] positive values")
@@ -475,6 +477,30 @@ def _check_design(design: DesignTable, part: BarTable | TubeTable | StringTable)
                 f"design.{name} {value * 1e3:g} mm leaves nothing to cut: it must be under half "
                 f"the length ({0.5 * L * 1e3:g} mm)"
             )
+    if design.width is not None:
+        if not isinstance(part, BarTable):
+            raise ValueError("design.width: a width range is for bars")
+        if part.width_profile:
+            raise ValueError("design.width: give a constant-width blank (drop bar.width_profile)")
+        if design.width[1] > 0.5 * L:
+            raise ValueError(
+                f"design.width: {design.width[1] * 1e3:g} mm is over half the length "
+                f"({0.5 * L * 1e3:g} mm), beyond what the beam models handle"
+            )
+    if design.thickness is not None:
+        if not isinstance(part, BarTable):
+            raise ValueError("design.thickness: a stock list of thicknesses is for bars")
+        if not 1 <= len(design.thickness) <= 20:
+            raise ValueError("design.thickness: give 1 to 20 stock thicknesses")
+        for t in design.thickness:
+            _check_size("design.thickness", t, "section", L, SIZE_LIMITS["depth_share"])
+            for name in ("min_thickness", "max_depth"):
+                value = getattr(design, name)
+                if value is not None and value >= t:
+                    raise ValueError(
+                        f"design.{name} {value * 1e3:g} mm must be under every stock thickness "
+                        f"(design.thickness has {t * 1e3:g} mm)"
+                    )
     if isinstance(part, BarTable):
         t0 = part.thickness
         for name in ("min_thickness", "max_depth"):

@@ -101,7 +101,28 @@ def print_table(console: Console, rows: Sequence[BarRow]) -> None:
             console.print(f"  {r.note}: {r.message}")
 
 
+def print_schedule(console: Console, report: InstrumentReport) -> None:
+    """The blanks the tool chose from [stock], and why (nothing without a [stock] table)."""
+    schedule = report.plan.schedule
+    if not schedule:
+        return
+    table = Table(title="Blanks sized from stock (mm)", box=box.SIMPLE_HEAD, padding=(0, 0, 0, 1))
+    for name in ("note", "length", "width", "thickness", "why"):
+        table.add_column(name, justify="left" if name in ("note", "why") else "right")
+    for c in schedule:
+        why = c.explanation if c.reachable else "; ".join((*c.binding, c.advice))
+        table.add_row(
+            c.note,
+            f"{c.length * 1e3:.1f}",
+            f"{c.width * 1e3:.1f}",
+            f"{c.thickness * 1e3:.1f}",
+            why,
+        )
+    console.print(table)
+
+
 def print_report(console: Console, report: InstrumentReport, out: Path) -> None:
+    print_schedule(console, report)
     print_table(console, report.rows)
     console.print(
         f"{report.met} of {len(report.rows)} bars meet their targets; designed "
@@ -146,6 +167,7 @@ def register(app: typer.Typer) -> None:
             gcode=gcode,
             paper=paper,
             fidelity=fidelity,
+            progress=lambda text: typer.echo(f"blanks: {text}", err=True),
         )
         with Progress(
             TextColumn("[bold]designing bars"),
