@@ -84,6 +84,10 @@ FEW_CYCLES = 10.0  # fewer cycles than this in the record: warn
 ONSET_FRACTION = 0.2  # onset = first sample above this fraction of the peak level
 PAD = 4  # zero-padding factor for detection
 MAX_ROUNDS = 3  # fit, search the residual, refit
+# A well-posed group converges in a few tens of evaluations; one that needs more is not the
+# model (reverberation, a sample's envelope) and is reported from its spectral peak instead.
+MAX_FIT_EVALUATIONS = 60
+MAX_GROUP = 3  # peaks fitted together at most
 # A fitted line weaker than this many standard deviations of its amplitude is noise: pure
 # noise exceeds 4 sd with probability exp(-8) = 3e-4 (Rayleigh), while a line that passed the
 # 15 dB detection test stands about 4.7 sd above the noise in a single bin, more over many.
@@ -93,7 +97,7 @@ MIN_AMPLITUDE_SD = 4.0
 # outweigh the bar) or after ``MAX_ANALYSED_S`` (1 s already resolves 1 Hz; 2 s bounds the
 # cost), but never before ``MIN_RECORD_S``.
 TAIL_DB = 45.0
-MAX_ANALYSED_S = 2.0
+MAX_ANALYSED_S = 1.0
 MIN_RECORD_S = 0.5
 ENVELOPE_HOP_S = 0.002  # envelope frames for finding strikes and the tail
 STRIKE_RISE_DB = 12.0  # a new strike: the envelope jumps this much within STRIKE_RISE_S ...
@@ -192,32 +196,58 @@ def _envelope_db(x: NDArray[np.float64], hop: int) -> NDArray[np.float64]:
 
 
 def find_strikes(x: NDArray[np.float64], rate: float) -> list[int]:
-    """Onset samples of every strike: where the envelope jumps ``STRIKE_RISE_DB`` within
-    ``STRIKE_RISE_S`` to within ``STRIKE_WITHIN_DB`` of the loudest frame. Each onset is the
-    first sample reaching ``ONSET_FRACTION`` of the strike's own peak, so noise before the
-    strike (pre-roll) does not move it."""
+    """Onset samples of every strike in the recording.
+
+    A strike raises many octave bands at once (the click and every partial it excites),
+    whereas the beating of a doublet or the decay of a resonator moves one band slowly. In
+    frames of ``ENVELOPE_HOP_S``, a frame starts a strike when, within ``STRIKE_RISE_S``, its
+    level rose ``STRIKE_RISE_DB`` in at least two active octave bands (bands within 30 dB of
+    the loudest band; one when only one is active) and the frame is within
+    ``STRIKE_WITHIN_DB`` of the loudest frame. Each onset is then the first sample reaching
+    ``ONSET_FRACTION`` of the strike's own peak, so noise before the strike (pre-roll) does
+    not move it."""
     hop = max(1, round(ENVELOPE_HOP_S * rate))
-    env = _envelope_db(x, hop)
-    if env.size < 2:
-        return [_onset_index(x)]
-    lag = max(1, round(STRIKE_RISE_S * rate / hop))
-    before = np.array([env[max(0, i - lag) : i].min() if i else -np.inf for i in range(env.size)])
-    loud = env >= env.max() - STRIKE_WITHIN_DB
-    jumps = np.flatnonzero(loud & (env - before >= STRIKE_RISE_DB))
-    starts: list[int] = []
-    for i in jumps:
-        if not starts or i - starts[-1] > 2 * lag:
-            starts.append(int(i))
-    if not starts:
-        return [_onset_index(x)]
+    frame = 4 * hop
+    n_frames = (x.size - frame) // hop + 1
     centre = np.median(x)
+    if n_frames < 4:
+        return [_onset_index(x)]
+    idx = np.arange(frame)[None, :] + hop * np.arange(n_frames)[:, None]
+    frames = x[idx]
+    frames = frames - frames.mean(axis=1, keepdims=True)  # a DC offset is no strike
+    spec = np.abs(np.fft.rfft(frames * np.hanning(frame), axis=1)) ** 2
+    f = np.fft.rfftfreq(frame, 1.0 / rate)
+    edges = [0.0, 200.0]
+    while edges[-1] * 2 < rate / 2:
+        edges.append(edges[-1] * 2)
+    edges.append(rate / 2 + 1)
+    band = np.searchsorted(edges, f, side="right") - 1
+    bands = np.stack([spec[:, band == k].sum(axis=1) for k in range(len(edges) - 1)], axis=1)
+    level = 10.0 * np.log10(bands + 1e-300)
+    active = level.max(axis=0) >= level.max() - 30.0
+    level = level[:, active]
+    lag = max(1, round(STRIKE_RISE_S * rate / hop))
+    before = np.full_like(level, np.inf)
+    for k in range(lag, level.shape[0]):
+        before[k] = level[k - lag : k].mean(axis=0)
+    # a band counts when it rose and is loud for that band (not noise stirring near its floor)
+    band_loud = level >= level.max(axis=0) - STRIKE_WITHIN_DB
+    rising = ((level - before >= STRIKE_RISE_DB) & band_loud).sum(axis=1)
+    total = 10.0 * np.log10(bands.sum(axis=1) + 1e-300)
+    loud = total >= total.max() - STRIKE_WITHIN_DB
+    first = int(np.argmax(loud))  # the first strike rises from whatever was before it
+    hits = np.flatnonzero(loud & (rising >= min(2, level.shape[1])))
+    starts = [first]
+    for i in hits:
+        if i - starts[-1] > 3 * lag:
+            starts.append(int(i))
     onsets = []
     for i in starts:
         a = max(0, (i - lag) * hop)
-        b = min(x.size, (i + 2 * lag) * hop)
-        env_s = np.abs(x[a:b] - centre)
-        onsets.append(a + int(np.argmax(env_s >= ONSET_FRACTION * env_s.max())))
-    return onsets
+        b = min(x.size, i * hop + frame + lag * hop)
+        env = np.abs(x[a:b] - centre)
+        onsets.append(a + int(np.argmax(env >= ONSET_FRACTION * env.max())))
+    return sorted(set(onsets))
 
 
 def _choose_strike(
@@ -485,7 +515,7 @@ def _fit_group(
         xtol=1e-12,
         ftol=1e-12,
         gtol=1e-12,
-        max_nfev=200,
+        max_nfev=MAX_FIT_EVALUATIONS,
     )
     w, la, coef = unpack(sol.x)
     J = jacobian(sol.x)
@@ -516,8 +546,13 @@ def _fit_group(
     )
 
 
-def _groups(lo: NDArray[np.int64], hi: NDArray[np.int64]) -> list[list[int]]:
-    """Indices of peaks (sorted by frequency) whose bin intervals overlap, chained."""
+def _groups(
+    lo: NDArray[np.int64], hi: NDArray[np.int64], centre: NDArray[np.float64]
+) -> list[list[int]]:
+    """Indices of peaks (sorted by frequency) whose bin intervals overlap, chained; a chain
+    of more than ``MAX_GROUP`` is split at its widest gaps (the split parts still see each
+    other through the Gauss-Seidel subtraction), since the cost of a fit grows steeply with
+    its size and a long chain is a reverberant hump, not a cluster of modes."""
     groups: list[list[int]] = []
     end = -1
     for j in range(lo.size):
@@ -527,7 +562,16 @@ def _groups(lo: NDArray[np.int64], hi: NDArray[np.int64]) -> list[list[int]]:
         else:
             groups.append([j])
             end = hi[j]
-    return groups
+    out: list[list[int]] = []
+    todo = groups
+    while todo:
+        g = todo.pop()
+        if len(g) <= MAX_GROUP:
+            out.append(g)
+            continue
+        cut = 1 + int(np.argmax(np.diff(centre[g])))
+        todo += [g[:cut], g[cut:]]
+    return sorted(out)
 
 
 def _refine(
@@ -547,7 +591,7 @@ def _refine(
     h = np.maximum(8.0, np.ceil(4.0 * half_width_hz * bins_per_hz))
     lo = np.clip(np.floor(m_peak - h), 1, X.size - 2).astype(int)
     hi = np.clip(np.ceil(m_peak + h), 1, X.size - 2).astype(int)
-    groups = _groups(lo, hi)
+    groups = _groups(lo, hi, m_peak)
     bands = [np.arange(lo[g[0]], max(hi[j] for j in g) + 1) for g in groups]
     # Expected noise power per bin: median of |X|^2 is ln 2 times its mean for Gaussian noise.
     power_db = 10.0 * np.log10(np.abs(X) ** 2 + 1e-300)
@@ -585,6 +629,8 @@ def _refine(
         for _extra in range(2):
             fit = fits[gi]
             assert fit is not None
+            if fit.omega.size >= MAX_GROUP:
+                break
             band = bands[gi]
             ratio = np.abs(fit.residual) ** 2 / noise_power[band]
             if ratio.mean() < 4.0 or ratio.max() < detect_ratio:
@@ -709,7 +755,7 @@ def find_partials(
     N = _prev_smooth_length(max(stop - start, round(need_s * rate)))
     raw, notes = _analyse(x[start : start + N], detect_args, min_snr_db)
     # Two lines closer than the record resolves: analyse a longer record when there is one.
-    gaps = np.diff(sorted(r[0] for r in raw)) if raw else np.empty(0)
+    gaps = _strong_gaps(raw)
     if gaps.size and np.min(gaps) * N / rate < 2.0 and end - start > N:
         longer = min(end - start, round(1.1 * 2.0 / max(np.min(gaps), 1e-9) * rate))
         if longer > N:
@@ -770,6 +816,22 @@ def find_partials(
                 "would separate them"
             )
     return TapResult(partials, tuple(warnings), onset / rate, T, strikes_s)
+
+
+def _strong_gaps(raw: list[tuple] | None) -> NDArray[np.float64]:
+    """Gaps (Hz) between neighbouring lines that are both within 30 dB of the strongest and
+    within 20 dB of each other: a pair worth a longer record (a doublet), unlike a weak
+    ripple beside a loud line (a room's reverberation)."""
+    if not raw:
+        return np.empty(0)
+    rows = sorted(raw, key=lambda r: r[0])
+    top = max(r[2] for r in rows)
+    gaps = [
+        q[0] - p[0]
+        for p, q in pairwise(rows)
+        if min(p[2], q[2]) >= top * 10 ** (-30 / 20) and min(p[2], q[2]) >= 0.1 * max(p[2], q[2])
+    ]
+    return np.asarray(gaps)
 
 
 def _analyse(
