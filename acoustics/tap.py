@@ -854,7 +854,7 @@ def _analyse(
 
     for _round in range(MAX_ROUNDS):
         fits = _refine(seg, rate, f_peak, half_width, min_snr_db)
-        raw, dropped = _accepted(fits, rate, fmin, fmax_eff)
+        raw, dropped, weak = _accepted(fits, rate, fmin, fmax_eff)
         # A weak partial masked by a loud neighbour's skirt appears once the fitted
         # partials are subtracted: search the residual and refit with what it reveals.
         residual = seg - _synthesize(fits, N)
@@ -875,12 +875,14 @@ def _analyse(
     # A peak whose fit did not settle is still a line: report it from the spectrum.
     peaks = _SpectrumPeaks(seg, rate, min_snr_db)
     fitted_f = np.array([r[0] for r in raw])
-    for f_d in sorted(dropped):
+    # a weak fit is only a line when the spectrum shows it clearly (10 dB over detection)
+    candidates = [(f_d, 0.0) for f_d in dropped] + [(f_d, 10.0) for f_d in weak]
+    for f_d, margin_db in sorted(candidates):
         if not fmin <= f_d <= fmax_eff:
             continue
         if fitted_f.size and np.min(np.abs(fitted_f - f_d)) < 1.0 / T:
             continue
-        line = peaks.line_near(f_d, 1.0 / T)
+        line = peaks.line_near(f_d, 1.0 / T, margin_db)
         if line is None or any(abs(r[0] - line[0]) < 0.5 / T for r in raw if r[5] == "peak"):
             continue
         raw.append(line)
@@ -911,7 +913,7 @@ class _SpectrumPeaks:
         W = np.abs(sp_fft.rfft(self.window, nfft))
         self.window_hw = float(np.argmax(W < 0.5 * W[0])) * self.df
 
-    def line_near(self, f_hz: float, reach_hz: float) -> tuple | None:
+    def line_near(self, f_hz: float, reach_hz: float, margin_db: float = 0.0) -> tuple | None:
         """(f, sd_f, amplitude, tau, sd_tau, "peak") of the largest peak within ``reach_hz``
         of ``f_hz``, or None when nothing there stands above the noise."""
         lo = max(1, int((f_hz - reach_hz) / self.df))
@@ -922,7 +924,7 @@ class _SpectrumPeaks:
         if not (self.P_db[i] >= self.P_db[i - 1] and self.P_db[i] >= self.P_db[i + 1]):
             return None
         snr_db = self.P_db[i] - self.floor_db[i]
-        if snr_db < self.min_snr_db:
+        if snr_db < self.min_snr_db + margin_db:
             return None
         a, b, c = self.P_db[i - 1], self.P_db[i], self.P_db[i + 1]
         den = a - 2.0 * b + c
@@ -961,22 +963,26 @@ def _synthesize(fits: list[_GroupFit], N: int) -> NDArray[np.float64]:
 
 def _accepted(
     fits: list[_GroupFit], rate: float, fmin: float, fmax: float
-) -> tuple[list[tuple], list[float]]:
+) -> tuple[list[tuple], list[float], list[float]]:
     """(f_hz, sd_f_hz, amplitude, tau_s, sd_tau_s, "fit") of the trustworthy fits, and the
-    starting frequencies (Hz) of the fits that did not settle (held by a bound)."""
+    starting frequencies (Hz) of the fits that did not settle (held by a bound) and of those
+    whose fitted amplitude is lost in its own uncertainty."""
     to_hz = rate / (2.0 * np.pi)
-    raw, dropped = [], []
+    raw, dropped, weak = [], [], []
     for fit in fits:
         for k in range(fit.omega.size):
             f_hz = fit.omega[k] * to_hz
             amp = abs(fit.C[k])
             if fit.at_bound[k] or not (fmin <= f_hz <= fmax):
                 dropped.append(float(fit.omega_start[k] * to_hz))
-            elif amp >= MIN_AMPLITUDE_SD * fit.sd_amp[k]:  # else: noise, once fitted
+            elif amp < MIN_AMPLITUDE_SD * fit.sd_amp[k]:
+                # noise once fitted, or a line the model does not describe: the spectrum decides
+                weak.append(float(fit.omega_start[k] * to_hz))
+            else:
                 tau = 1.0 / (fit.alpha[k] * rate)
                 sd_f = fit.sd_omega[k] * to_hz
                 raw.append((f_hz, sd_f, amp, tau, fit.sd_log_alpha[k] * tau, "fit"))
-    return raw, dropped
+    return raw, dropped, weak
 
 
 def _merge_duplicates(raw: list[tuple], min_gap_hz: float) -> list[tuple]:
