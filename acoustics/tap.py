@@ -72,6 +72,7 @@ from numpy.typing import ArrayLike, NDArray
 from scipy import fft as sp_fft
 from scipy.optimize import least_squares
 from scipy.signal import find_peaks
+from tonewright.acoustics.pitch import ratio_to_cents
 
 from tonewright.errors import InputError
 
@@ -761,6 +762,26 @@ def find_partials(
         if longer > N:
             N = _prev_smooth_length(longer)
             raw, notes = _analyse(x[start : start + N], detect_args, min_snr_db)
+    # A room's own response to each partial rings close beside it and dies fast (its
+    # reverberation time): once that has died away, a later start sees the bar's line alone.
+    late = _room_settling(raw, rate)
+    if late and (end - start - late) / rate >= MIN_RECORD_S:
+        N2 = _prev_smooth_length(min(N, end - start - late))
+        raw2, notes2 = _analyse(x[start + late : start + late + N2], detect_args, min_snr_db)
+        if raw2:
+            # refer the later record's amplitudes to the earlier start; keep the early-only
+            # lines (short partials that have died by then)
+            raw2 = [
+                (f, sd, a * np.exp(late / (tau * rate)) if np.isfinite(tau) else a, tau, sdt, how)
+                for f, sd, a, tau, sdt, how in raw2
+            ]
+            f2 = np.array([r[0] for r in raw2])
+            early = [r for r in raw if np.min(np.abs(f2 - r[0])) > 2.0 * rate / N2]
+            raw, notes = raw2 + early, notes2
+            warnings.append(
+                f"reverberation beside the partials: analysed from {(start + late) / rate:.3f} s, "
+                "after the room's own response died away"
+            )
     T = N / rate
     warnings += notes
     if raw is None:
@@ -818,10 +839,31 @@ def find_partials(
     return TapResult(partials, tuple(warnings), onset / rate, T, strikes_s)
 
 
+ROOM_NEIGHBOUR_CENTS = 40.0  # a room's response to a partial lies this close to it ...
+ROOM_DECAY_RATIO = 0.25  # ... and dies at least this much faster
+MAX_LATE_START_S = 0.25
+
+
+def _room_settling(raw: list[tuple] | None, rate: float) -> int:
+    """Samples to wait for the room's own response: three times the longest decay of the
+    short lines that stand beside a stronger, longer line (0: none)."""
+    if not raw:
+        return 0
+    taus = []
+    for f, _, a, tau, _, _ in raw:
+        for g, _, b, tau_g, _, _ in raw:
+            close = abs(float(ratio_to_cents(f / g))) < ROOM_NEIGHBOUR_CENTS
+            if close and g != f and b > a and np.isfinite(tau) and tau < ROOM_DECAY_RATIO * tau_g:
+                taus.append(tau)
+    if not taus:
+        return 0
+    return round(min(3.0 * max(taus), MAX_LATE_START_S) * rate)
+
+
 def _strong_gaps(raw: list[tuple] | None) -> NDArray[np.float64]:
     """Gaps (Hz) between neighbouring lines that are both within 30 dB of the strongest and
-    within 20 dB of each other: a pair worth a longer record (a doublet), unlike a weak
-    ripple beside a loud line (a room's reverberation)."""
+    within 20 dB of each other, with decays within a factor 4: a pair worth a longer record
+    (a doublet), unlike a weak or short ripple beside a loud line (a room's reverberation)."""
     if not raw:
         return np.empty(0)
     rows = sorted(raw, key=lambda r: r[0])
@@ -829,7 +871,9 @@ def _strong_gaps(raw: list[tuple] | None) -> NDArray[np.float64]:
     gaps = [
         q[0] - p[0]
         for p, q in pairwise(rows)
-        if min(p[2], q[2]) >= top * 10 ** (-30 / 20) and min(p[2], q[2]) >= 0.1 * max(p[2], q[2])
+        if min(p[2], q[2]) >= top * 10 ** (-30 / 20)
+        and min(p[2], q[2]) >= 0.1 * max(p[2], q[2])
+        and min(p[3], q[3]) >= ROOM_DECAY_RATIO * max(p[3], q[3])  # not a room's response
     ]
     return np.asarray(gaps)
 
