@@ -247,7 +247,10 @@ def find_strikes(x: NDArray[np.float64], rate: float) -> list[int]:
         a = max(0, (i - lag) * hop)
         b = min(x.size, i * hop + frame + lag * hop)
         env = np.abs(x[a:b] - centre)
-        onsets.append(a + int(np.argmax(env >= ONSET_FRACTION * env.max())))
+        # a later strike rises out of the earlier one's ring: count from that level
+        base = env[: max(1, (lag - 4) * hop)].max() if i > starts[0] else 0.0
+        level = max(ONSET_FRACTION * env.max(), base + ONSET_FRACTION * (env.max() - base))
+        onsets.append(a + int(np.argmax(env >= level)))
     return sorted(set(onsets))
 
 

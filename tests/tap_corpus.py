@@ -23,6 +23,7 @@ from dataclasses import dataclass, field
 from pathlib import Path
 
 import numpy as np
+from scipy.signal import fftconvolve
 
 SF2 = Path("/usr/share/sounds/sf2/FluidR3_GM.sf2")
 GM_PROGRAM = {"glockenspiel": 9, "vibraphone": 11, "marimba": 12, "xylophone": 13, "tubular": 14}
@@ -125,7 +126,7 @@ def strike_case(
         y[k:] += 0.7 * ring(lines, rate, dur, rng)[: y.size - k]
     if t60_s is not None:
         h = room_impulse(rate, t60_s, rng)
-        y = np.convolve(y, h)[: y.size]
+        y = fftconvolve(y, h)[: y.size]
     y = np.concatenate([np.zeros(int(pre_s * rate)), y])
     t = np.arange(y.size) / rate
     rms = np.sqrt(np.mean(y**2))
