@@ -100,6 +100,7 @@ MIN_AMPLITUDE_SD = 4.0
 TAIL_DB = 45.0
 MAX_ANALYSED_S = 1.0
 MIN_RECORD_S = 0.5
+MAX_LONGER_S = 3.0  # a close pair may lengthen the record up to this (it costs time)
 ENVELOPE_HOP_S = 0.002  # envelope frames for finding strikes and the tail
 STRIKE_RISE_DB = 12.0  # a new strike: the envelope jumps this much within STRIKE_RISE_S ...
 STRIKE_RISE_S = 0.02
@@ -761,7 +762,11 @@ def find_partials(
     # Two lines closer than the record resolves: analyse a longer record when there is one.
     gaps = _strong_gaps(raw)
     if gaps.size and np.min(gaps) * N / rate < 2.0 and end - start > N:
-        longer = min(end - start, round(1.1 * 2.0 / max(np.min(gaps), 1e-9) * rate))
+        longer = min(
+            end - start,
+            round(1.1 * 2.0 / max(np.min(gaps), 1e-9) * rate),
+            round(MAX_LONGER_S * rate),
+        )
         if longer > N:
             N = _prev_smooth_length(longer)
             raw, notes = _analyse(x[start : start + N], detect_args, min_snr_db)
