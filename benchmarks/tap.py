@@ -128,7 +128,7 @@ def stereo_five_seconds(repeats: int = 5) -> None:
             result = find_partials(rec.samples, rec.rate)
             ours.append(time.perf_counter() - t0)
             t0 = time.perf_counter()
-            data, rate = sf.read(str(path))
+            data, _rate = sf.read(str(path))
             x = data.mean(axis=1)
             S = 20 * np.log10(np.abs(np.fft.rfft(x * np.hanning(x.size), 8 * x.size)) + 1e-300)
             find_peaks(S, prominence=10.0)
