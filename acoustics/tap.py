@@ -89,6 +89,7 @@ MAX_ROUNDS = 3  # fit, search the residual, refit
 # model (reverberation, a sample's envelope) and is reported from its spectral peak instead.
 MAX_FIT_EVALUATIONS = 60
 MAX_GROUP = 3  # peaks fitted together at most
+MAX_CANDIDATES = 40  # peaks taken from one detection pass, strongest first
 # A fitted line weaker than this many standard deviations of its amplitude is noise: pure
 # noise exceeds 4 sd with probability exp(-8) = 3e-4 (Rayleigh), while a line that passed the
 # 15 dB detection test stands about 4.7 sd above the noise in a single bin, more over many.
@@ -363,6 +364,8 @@ def _detect(
     if top_db is None:
         top_db = float(P_db[idx].max())
     idx = idx[P_db[idx] >= top_db - dynamic_range_db]
+    if idx.size > MAX_CANDIDATES:  # the strongest only: weak junk costs fits, not answers
+        idx = np.sort(idx[np.argsort(-P_db[idx])[:MAX_CANDIDATES]])
 
     a, b, c = P_db[idx - 1], P_db[idx], P_db[idx + 1]
     den = a - 2.0 * b + c
