@@ -9,6 +9,7 @@ are right for at least 95 % of the lines.
 """
 
 import json
+from pathlib import Path
 
 import numpy as np
 import pytest
@@ -295,3 +296,31 @@ def test_sound_bank_notes(tmp_path, instrument, note, reverb):
         off = np.min(np.abs(cents(got, f_ref)))
         limit = 1.0 + float(cents(f_ref + 0.1, f_ref))
         assert off < limit, f"{instrument} {note}: {f_ref:.2f} Hz missing ({off:.2f} cents)"
+
+
+def test_part_names_the_lines_and_the_plot_shows_its_modes(tmp_path):
+    # The workshop C4 bar's own modes, 3 % sharp (an uncalibrated blank), as a tap with hum.
+    from tonewright.bench import expected_modes
+
+    part = Path(__file__).resolve().parent.parent / "examples" / "workshop-marimba-c4.toml"
+    modes = [m for m in expected_modes(part) if m[2] < 8000.0][:6]
+    lines = [
+        Line(1.03 * f, 1.0 / k, 0.5, f"{fam} {order}")
+        for k, (fam, order, f) in enumerate(modes, start=1)
+    ]
+    rng = np.random.default_rng(8)
+    y = ring(lines, 44100, 1.2, rng)
+    y += 0.02 * np.sin(2 * np.pi * 50.0 * np.arange(y.size) / 44100)
+    y = 0.8 * (y + rng.normal(0.0, 1e-3, y.size)) / np.max(np.abs(y))
+    wav = tmp_path / "tap.wav"
+    sf.write(wav, y, 44100, subtype="PCM_24")
+    png = tmp_path / "tap.png"
+    r = runner.invoke(app, ["listen", str(wav), "--json", "--part", str(part), "--plot", str(png)])
+    assert r.exit_code == 0, r.stderr
+    out = json.loads(r.stdout)
+    assert out["identified_by"] == "the expected part's modes"
+    named = {round(p["frequency_hz"]): p["mode"] for p in out["partials"]}
+    for line in lines:
+        assert named[round(line.f_hz)] == line.label
+    assert {e["mode"] for e in out["expected"]} >= {ln.label for ln in lines}
+    assert png.stat().st_size > 10_000
