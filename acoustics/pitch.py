@@ -32,11 +32,9 @@ modes 4, 5 and 6 of a tubular bell lie near 81 : 121 : 169, close to 2 : 3 : 4, 
 perceived strike note is about an octave below mode 4 (a virtual pitch built from those
 near-harmonic modes).
 
-This project's rule (ours, not published): the strike note is the fundamental ``f0`` of the
-harmonic series ``2 f0, 3 f0, 4 f0`` that best fits modes 4, 5, 6 in the least-squares sense in
-log-frequency, i.e. ``ln f0 = mean(ln f4 - ln 2, ln f5 - ln 3, ln f6 - ln 4)``: the geometric
-mean of ``f4/2, f5/3, f6/4``. For the ideal 81 : 121 : 169 ratios it lies about 22 cents above
-``f4 / 2``.
+The rule used everywhere here (design, modes, shop sheets, sound and listen) is that published
+one, taken literally: the strike note is ``f4 / 2``. (An earlier rule of this project, a 2:3:4
+fit to modes 4-6, lay about 22 cents higher on the ideal ratios and is no longer used.)
 """
 
 from __future__ import annotations
@@ -67,9 +65,10 @@ __all__ = [
 
 _CENTS_PER_OCTAVE = 1200.0
 
-STRIKE_MODES: tuple[tuple[int, float], ...] = ((4, 2.0), (5, 3.0), (6, 4.0))
+STRIKE_MODES: tuple[tuple[int, float], ...] = ((4, 2.0),)
 """The strike-note rule's (bending mode, harmonic number) pairs: the strike note is the
-geometric mean of f_mode / harmonic over these (see the module docstring)."""
+geometric mean of f_mode / harmonic over these; the published rule is mode 4 an octave down
+(see the module docstring)."""
 _A4_MIDI = 69
 
 CENTS_PER_LN = float(_CENTS_PER_OCTAVE / np.log(2.0))
@@ -177,16 +176,13 @@ def temperature_correction_cents(delta_T: ArrayLike, coeff_cents_per_K: float) -
 
 
 def strike_note_hz(partials_hz: ArrayLike) -> float:
-    """Strike note of a chime from its free-free bending partials (mode 1 first, at least 6).
-
-    The fundamental of the harmonic series 2:3:4 fitted to modes 4, 5, 6 by least squares in
-    log-frequency (the geometric mean of ``f4/2, f5/3, f6/4``); see the module docstring for
-    what is published and what is this project's rule.
-    """
+    """Strike note of a chime from its free-free bending partials (mode 1 first, at least 4):
+    an octave below bending mode 4, the published rule (see the module docstring)."""
     f = np.asarray(partials_hz, float)
-    if f.ndim != 1 or f.size < 6:
+    need = max(m for m, _ in STRIKE_MODES)
+    if f.ndim != 1 or f.size < need:
         raise InputError(
-            f"partials_hz: got {f.size} value(s); the strike note needs bending modes 1..6"
+            f"partials_hz: got {f.size} value(s); the strike note needs bending modes 1..{need}"
         )
     if not np.all(np.isfinite(f)) or np.any(f <= 0) or np.any(np.diff(f) <= 0):
         raise InputError("partials_hz: give positive frequencies sorted upward, mode 1 first")

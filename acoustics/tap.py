@@ -72,10 +72,11 @@ from numpy.typing import ArrayLike, NDArray
 from scipy import fft as sp_fft
 from scipy.optimize import least_squares
 from scipy.signal import find_peaks
+from tonewright.acoustics.pitch import ratio_to_cents
 
 from tonewright.errors import InputError
 
-__all__ = ["Partial", "TapResult", "damped_sinusoid_dft", "find_partials"]
+__all__ = ["Partial", "TapResult", "damped_sinusoid_dft", "find_partials", "find_strikes"]
 
 LN_1000 = float(np.log(1000.0))
 MIN_ANALYSED_S = 0.05  # shortest record after the strike that can be analysed at all
@@ -84,10 +85,29 @@ FEW_CYCLES = 10.0  # fewer cycles than this in the record: warn
 ONSET_FRACTION = 0.2  # onset = first sample above this fraction of the peak level
 PAD = 4  # zero-padding factor for detection
 MAX_ROUNDS = 3  # fit, search the residual, refit
+# A well-posed group converges in a few tens of evaluations; one that needs more is not the
+# model (reverberation, a sample's envelope) and is reported from its spectral peak instead.
+MAX_FIT_EVALUATIONS = 60
+MAX_GROUP = 3  # peaks fitted together at most
+MAX_CANDIDATES = 40  # peaks taken from one detection pass, strongest first
 # A fitted line weaker than this many standard deviations of its amplitude is noise: pure
 # noise exceeds 4 sd with probability exp(-8) = 3e-4 (Rayleigh), while a line that passed the
 # 15 dB detection test stands about 4.7 sd above the noise in a single bin, more over many.
 MIN_AMPLITUDE_SD = 4.0
+# The analysed record: the early, bar-dominated part of the chosen strike. It ends where the
+# envelope has fallen ``TAIL_DB`` below its peak (later, a room's reverberation and the noise
+# outweigh the bar) or after ``MAX_ANALYSED_S`` (1 s already resolves 1 Hz; 2 s bounds the
+# cost), but never before ``MIN_RECORD_S``.
+TAIL_DB = 45.0
+MAX_ANALYSED_S = 1.0
+MIN_RECORD_S = 0.5
+MAX_LONGER_S = 3.0  # a close pair may lengthen the record up to this (it costs time)
+ENVELOPE_HOP_S = 0.002  # envelope frames for finding strikes and the tail
+STRIKE_RISE_DB = 12.0  # a new strike: the envelope jumps this much within STRIKE_RISE_S ...
+STRIKE_RISE_S = 0.02
+STRIKE_WITHIN_DB = 20.0  # ... to within this much of the loudest frame
+CLIP_FRACTION = 0.999  # samples this close to the recording's peak, in runs, are clipped
+CLIP_RUN = 3
 
 
 @dataclass(frozen=True)
@@ -103,6 +123,10 @@ class Partial:
     frequency_uncertainty_hz: float
     amplitude: float
     decay_uncertainty_s: float = float("nan")
+    method: str = "fit"
+    """``fit``: the decaying-sinusoid fit; ``peak``: the fit did not settle, so the frequency
+    is the interpolated spectral peak (larger uncertainty, level from the peak height, decay
+    from the line width: rough)."""
 
     @property
     def t60_s(self) -> float:
@@ -112,12 +136,15 @@ class Partial:
 
 @dataclass(frozen=True)
 class TapResult:
-    """Partials sorted by frequency, notes for the user, and where the analysis started."""
+    """Partials sorted by frequency, notes for the user, where the analysis started (the
+    onset of the analysed strike), how long a record was analysed, and the onsets of every
+    strike found (s)."""
 
     partials: tuple[Partial, ...]
     warnings: tuple[str, ...]
     onset_s: float
     analysed_s: float
+    strikes_s: tuple[float, ...] = ()
 
     @property
     def frequencies_hz(self) -> tuple[float, ...]:
@@ -162,6 +189,121 @@ def _prev_smooth_length(n: int) -> int:
 def _onset_index(x: NDArray[np.float64]) -> int:
     env = np.abs(x - np.median(x))
     return int(np.argmax(env >= ONSET_FRACTION * env.max()))
+
+
+def _envelope_db(x: NDArray[np.float64], hop: int) -> NDArray[np.float64]:
+    """Peak level (dB) of ``x`` minus its median in frames of ``hop`` samples."""
+    n = x.size // hop
+    frames = np.abs(x[: n * hop] - np.median(x)).reshape(n, hop)
+    return 20.0 * np.log10(frames.max(axis=1) + 1e-300)
+
+
+def find_strikes(x: NDArray[np.float64], rate: float) -> list[int]:
+    """Onset samples of every strike in the recording.
+
+    A strike raises many octave bands at once (the click and every partial it excites),
+    whereas the beating of a doublet or the decay of a resonator moves one band slowly. In
+    frames of ``ENVELOPE_HOP_S``, a frame starts a strike when, within ``STRIKE_RISE_S``, its
+    level rose ``STRIKE_RISE_DB`` in at least two active octave bands (bands within 30 dB of
+    the loudest band; one when only one is active) and the frame is within
+    ``STRIKE_WITHIN_DB`` of the loudest frame. Each onset is then the first sample reaching
+    ``ONSET_FRACTION`` of the strike's own peak, so noise before the strike (pre-roll) does
+    not move it."""
+    hop = max(1, round(ENVELOPE_HOP_S * rate))
+    frame = 4 * hop
+    n_frames = (x.size - frame) // hop + 1
+    centre = np.median(x)
+    if n_frames < 4:
+        return [_onset_index(x)]
+    idx = np.arange(frame)[None, :] + hop * np.arange(n_frames)[:, None]
+    frames = x[idx]
+    frames = frames - frames.mean(axis=1, keepdims=True)  # a DC offset is no strike
+    spec = np.abs(np.fft.rfft(frames * np.hanning(frame), axis=1)) ** 2
+    f = np.fft.rfftfreq(frame, 1.0 / rate)
+    edges = [0.0, 200.0]
+    while edges[-1] * 2 < rate / 2:
+        edges.append(edges[-1] * 2)
+    edges.append(rate / 2 + 1)
+    band = np.searchsorted(edges, f, side="right") - 1
+    bands = np.stack([spec[:, band == k].sum(axis=1) for k in range(len(edges) - 1)], axis=1)
+    level = 10.0 * np.log10(bands + 1e-300)
+    active = level.max(axis=0) >= level.max() - 30.0
+    level = level[:, active]
+    lag = max(1, round(STRIKE_RISE_S * rate / hop))
+    before = np.full_like(level, np.inf)
+    for k in range(lag, level.shape[0]):
+        before[k] = level[k - lag : k].mean(axis=0)
+    # a band counts when it rose and is loud for that band (not noise stirring near its floor)
+    band_loud = level >= level.max(axis=0) - STRIKE_WITHIN_DB
+    rising = ((level - before >= STRIKE_RISE_DB) & band_loud).sum(axis=1)
+    total = 10.0 * np.log10(bands.sum(axis=1) + 1e-300)
+    loud = total >= total.max() - STRIKE_WITHIN_DB
+    first = int(np.argmax(loud))  # the first strike rises from whatever was before it
+    hits = np.flatnonzero(loud & (rising >= min(2, level.shape[1])))
+    starts = [first]
+    for i in hits:
+        if i - starts[-1] > 3 * lag:
+            starts.append(int(i))
+    onsets = []
+    for i in starts:
+        a = max(0, (i - lag) * hop)
+        b = min(x.size, i * hop + frame + lag * hop)
+        env = np.abs(x[a:b] - centre)
+        # a later strike rises out of the earlier one's ring: count from that level
+        base = env[: max(1, (lag - 4) * hop)].max() if i > starts[0] else 0.0
+        level = max(ONSET_FRACTION * env.max(), base + ONSET_FRACTION * (env.max() - base))
+        onsets.append(a + int(np.argmax(env >= level)))
+    return sorted(set(onsets))
+
+
+def _choose_strike(
+    x: NDArray[np.float64], rate: float, onsets: list[int], need: int
+) -> tuple[int, int]:
+    """(onset, end) of the strike to analyse: the first whose clean ring (up to the next
+    strike) is long enough and within 6 dB of the loudest strike, else the longest ring."""
+    ends = [*onsets[1:], x.size]
+    centre = np.median(x)
+    peaks = np.array(
+        [
+            np.max(np.abs(x[a : min(b, a + need)] - centre))
+            for a, b in zip(onsets, ends, strict=True)
+        ]
+    )
+    for k, (a, b) in enumerate(zip(onsets, ends, strict=True)):
+        if b - a >= need and peaks[k] >= 0.5 * peaks.max():
+            return a, b
+    k = int(np.argmax([b - a for a, b in zip(onsets, ends, strict=True)]))
+    return onsets[k], ends[k]
+
+
+def _record_end(x: NDArray[np.float64], rate: float, start: int, end: int) -> int:
+    """End of the analysed record: the envelope ``TAIL_DB`` below its peak, or the cap."""
+    hop = max(1, round(ENVELOPE_HOP_S * rate))
+    env = _envelope_db(x[start:end], hop)
+    if env.size == 0:
+        return end
+    # smooth over 20 ms so a beat's minimum is not taken for the end of the ring
+    w = max(1, round(0.02 * rate / hop))
+    smooth = np.convolve(env, np.ones(w) / w, mode="same")
+    below = np.flatnonzero(smooth < env.max() - TAIL_DB)
+    stop = end if below.size == 0 else start + int(below[0]) * hop
+    stop = max(stop, start + round(MIN_RECORD_S * rate))
+    return min(end, stop, start + round(MAX_ANALYSED_S * rate))
+
+
+def _clipped_until(x: NDArray[np.float64], start: int, stop: int) -> int:
+    """Last sample (+1) of a clipped run (``CLIP_RUN`` samples at the peak) in ``x[start:stop]``
+    or ``start`` when none is there."""
+    seg = x[start:stop]
+    if seg.size <= CLIP_RUN:
+        return start
+    peak = np.max(np.abs(seg))
+    # a flat top: at the peak, and equal to its neighbour (a sine's top is never that flat
+    # above about 12 Hz at 96 kHz)
+    flat = (np.abs(seg[1:]) >= CLIP_FRACTION * peak) & (np.abs(np.diff(seg)) <= 1e-6 * peak)
+    run = np.convolve(flat.astype(float), np.ones(CLIP_RUN - 1), mode="valid") >= CLIP_RUN - 1
+    idx = np.flatnonzero(run)
+    return start if idx.size == 0 else start + int(idx[-1]) + CLIP_RUN
 
 
 def _noise_floor_db(f: NDArray[np.float64], P_db: NDArray[np.float64]) -> NDArray[np.float64]:
@@ -222,6 +364,8 @@ def _detect(
     if top_db is None:
         top_db = float(P_db[idx].max())
     idx = idx[P_db[idx] >= top_db - dynamic_range_db]
+    if idx.size > MAX_CANDIDATES:  # the strongest only: weak junk costs fits, not answers
+        idx = np.sort(idx[np.argsort(-P_db[idx])[:MAX_CANDIDATES]])
 
     a, b, c = P_db[idx - 1], P_db[idx], P_db[idx + 1]
     den = a - 2.0 * b + c
@@ -256,6 +400,7 @@ class _GroupFit:
     omega_lo: NDArray[np.float64]
     omega_hi: NDArray[np.float64]
     residual: NDArray[np.complex128]  # data minus model on the group's bins
+    omega_start: NDArray[np.float64]  # where the fit started (the detected peak)
 
 
 def _partials_dft(
@@ -319,6 +464,7 @@ def _fit_group(
     omega_hi: NDArray[np.float64],
     omega0: NDArray[np.float64],
     log_alpha0: NDArray[np.float64] | None,
+    omega_start: NDArray[np.float64] | None = None,
 ) -> _GroupFit:
     """Fit K decaying sinusoids plus a linear background to DFT bins ``D`` at ``m``."""
     K = omega0.size
@@ -377,7 +523,7 @@ def _fit_group(
         xtol=1e-12,
         ftol=1e-12,
         gtol=1e-12,
-        max_nfev=200,
+        max_nfev=MAX_FIT_EVALUATIONS,
     )
     w, la, coef = unpack(sol.x)
     J = jacobian(sol.x)
@@ -404,11 +550,17 @@ def _fit_group(
         omega_lo=omega_lo,
         omega_hi=omega_hi,
         residual=-(r[:nb] + 1j * r[nb:]),
+        omega_start=np.asarray(omega0 if omega_start is None else omega_start, float).copy(),
     )
 
 
-def _groups(lo: NDArray[np.int64], hi: NDArray[np.int64]) -> list[list[int]]:
-    """Indices of peaks (sorted by frequency) whose bin intervals overlap, chained."""
+def _groups(
+    lo: NDArray[np.int64], hi: NDArray[np.int64], centre: NDArray[np.float64]
+) -> list[list[int]]:
+    """Indices of peaks (sorted by frequency) whose bin intervals overlap, chained; a chain
+    of more than ``MAX_GROUP`` is split at its widest gaps (the split parts still see each
+    other through the Gauss-Seidel subtraction), since the cost of a fit grows steeply with
+    its size and a long chain is a reverberant hump, not a cluster of modes."""
     groups: list[list[int]] = []
     end = -1
     for j in range(lo.size):
@@ -418,7 +570,16 @@ def _groups(lo: NDArray[np.int64], hi: NDArray[np.int64]) -> list[list[int]]:
         else:
             groups.append([j])
             end = hi[j]
-    return groups
+    out: list[list[int]] = []
+    todo = groups
+    while todo:
+        g = todo.pop()
+        if len(g) <= MAX_GROUP:
+            out.append(g)
+            continue
+        cut = 1 + int(np.argmax(np.diff(centre[g])))
+        todo += [g[:cut], g[cut:]]
+    return sorted(out)
 
 
 def _refine(
@@ -438,7 +599,7 @@ def _refine(
     h = np.maximum(8.0, np.ceil(4.0 * half_width_hz * bins_per_hz))
     lo = np.clip(np.floor(m_peak - h), 1, X.size - 2).astype(int)
     hi = np.clip(np.ceil(m_peak + h), 1, X.size - 2).astype(int)
-    groups = _groups(lo, hi)
+    groups = _groups(lo, hi, m_peak)
     bands = [np.arange(lo[g[0]], max(hi[j] for j in g) + 1) for g in groups]
     # Expected noise power per bin: median of |X|^2 is ln 2 times its mean for Gaussian noise.
     power_db = 10.0 * np.log10(np.abs(X) ** 2 + 1e-300)
@@ -467,6 +628,7 @@ def _refine(
                 omega_det + reach if prev is None else prev.omega_hi,
                 omega_det if prev is None else prev.omega,
                 None if prev is None else np.log(prev.alpha),
+                omega_det if prev is None else prev.omega_start,
             )
 
     # Two lines closer than the detection window resolves show up as one peak whose fit
@@ -475,6 +637,8 @@ def _refine(
         for _extra in range(2):
             fit = fits[gi]
             assert fit is not None
+            if fit.omega.size >= MAX_GROUP:
+                break
             band = bands[gi]
             ratio = np.abs(fit.residual) ** 2 / noise_power[band]
             if ratio.mean() < 4.0 or ratio.max() < detect_ratio:
@@ -490,6 +654,7 @@ def _refine(
                 np.append(fit.omega_hi, omega_new + reach),
                 np.append(fit.omega, omega_new),
                 np.log(np.append(fit.alpha, np.median(fit.alpha))),
+                np.append(fit.omega_start, omega_new),
             )
             rss_old = float(np.sum(np.abs(fit.residual) ** 2))
             rss_new = float(np.sum(np.abs(trial.residual) ** 2))
@@ -552,34 +717,199 @@ def find_partials(
     ``samples`` is one channel in full-scale units; ``count`` keeps only the strongest
     partials (then sorted by frequency); ``fmin``/``fmax`` bound the search (Hz); ``skip_s``
     is the time skipped after the onset to leave out the mallet contact and the click.
+
+    With several strikes in the recording, the first that rings clean (up to the next one)
+    for the analysed length and is within 6 dB of the loudest is analysed, and a warning says
+    which. The record is the early part of the ring (see ``TAIL_DB``, ``MAX_ANALYSED_S``); a
+    clipped start is skipped. A peak whose fit does not settle is reported from the spectrum
+    (``Partial.method == "peak"``) rather than dropped.
     """
     x, fmax_eff = _validate(samples, rate, count, fmin, fmax, skip_s)
-    onset = _onset_index(x)
-    start = onset + round(skip_s * rate)
-    available_s = max(0, x.size - start) / rate
     need_s = max(MIN_ANALYSED_S, MIN_PERIODS_AT_FMIN / fmin)
+    warnings: list[str] = []
+    onsets = find_strikes(x, rate)
+    want = round(max(need_s, MIN_RECORD_S) * rate) + round(skip_s * rate)
+    onset, end = _choose_strike(x, rate, onsets, want)
+    if len(onsets) > 1:
+        others = ", ".join(f"{o / rate:.3f}" for o in onsets)
+        warnings.append(
+            f"{len(onsets)} strikes found (at {others} s); analysed the one at "
+            f"{onset / rate:.3f} s"
+            + (f", up to the next at {end / rate:.3f} s" if end < x.size else "")
+        )
+    start = onset + round(skip_s * rate)
+    available_s = max(0, end - start) / rate
     if available_s < need_s:
         raise InputError(
             f"recording: {available_s:.3f} s of sound after the strike; need at least "
             f"{need_s:.3f} s to measure down to fmin={fmin:g} Hz (record longer, or raise fmin)"
         )
-    N = _prev_smooth_length(x.size - start)
-    seg = x[start : start + N]
-    T = N / rate
-    warnings: list[str] = []
-
+    clip_end = _clipped_until(x, onset, end)
+    if clip_end > start:
+        if (end - clip_end) / rate >= max(need_s, 0.5 * MIN_RECORD_S):
+            warnings.append(
+                f"the strike is clipped until {clip_end / rate:.3f} s; analysed from there "
+                "(levels are referred to the onset from the fitted decays)"
+            )
+            start = clip_end
+        else:
+            warnings.append(
+                "the strike is clipped and too short to skip the clipped part: clipping adds "
+                "false partials at sums and multiples; record with less gain"
+            )
+    stop = _record_end(x, rate, start, end)
     detect_args = (rate, fmin, fmax_eff, min_snr_db, min_prominence_db, dynamic_range_db)
+    strikes_s = tuple(o / rate for o in onsets)
+    N = _prev_smooth_length(max(stop - start, round(need_s * rate)))
+    raw, notes = _analyse(x[start : start + N], detect_args, min_snr_db)
+    # Two lines closer than the record resolves: analyse a longer record when there is one.
+    gaps = _strong_gaps(raw)
+    if gaps.size and np.min(gaps) * N / rate < 2.0 and end - start > N:
+        longer = min(
+            end - start,
+            round(1.1 * 2.0 / max(np.min(gaps), 1e-9) * rate),
+            round(MAX_LONGER_S * rate),
+        )
+        if longer > N:
+            N = _prev_smooth_length(longer)
+            raw, notes = _analyse(x[start : start + N], detect_args, min_snr_db)
+    # A room's own response to each partial rings close beside it and dies fast (its
+    # reverberation time): once that has died away, a later start sees the bar's line alone.
+    late = _room_settling(raw, rate)
+    if late and (end - start - late) / rate >= MIN_RECORD_S:
+        N2 = _prev_smooth_length(min(N, end - start - late))
+        raw2, notes2 = _analyse(x[start + late : start + late + N2], detect_args, min_snr_db)
+        if raw2:
+            # refer the later record's amplitudes to the earlier start; keep the early-only
+            # lines (short partials that have died by then)
+            raw2 = [
+                (f, sd, a * np.exp(late / (tau * rate)) if np.isfinite(tau) else a, tau, sdt, how)
+                for f, sd, a, tau, sdt, how in raw2
+            ]
+            f2 = np.array([r[0] for r in raw2])
+            early = [r for r in raw if np.min(np.abs(f2 - r[0])) > 2.0 * rate / N2]
+            raw, notes = raw2 + early, notes2
+            warnings.append(
+                f"reverberation beside the partials: analysed from {(start + late) / rate:.3f} s, "
+                "after the room's own response died away"
+            )
+    T = N / rate
+    warnings += notes
+    if raw is None:
+        return TapResult((), tuple(warnings), onset / rate, T, strikes_s)
+
+    # amplitude back at the onset, so that levels compare the strike itself
+    raw = [
+        (
+            f,
+            sd_f,
+            a * np.exp((start - onset) / (tau * rate)) if np.isfinite(tau) else a,
+            tau,
+            sd_tau,
+            how,
+        )
+        for f, sd_f, a, tau, sd_tau, how in raw
+    ]
+    raw.sort(key=lambda r: r[0])
+    raw = _merge_duplicates(raw, 0.25 / T)
+    if count is not None:
+        raw = sorted(sorted(raw, key=lambda r: -r[2])[:count], key=lambda r: r[0])
+    if not raw:
+        warnings.append("no partial survived the fit")
+        return TapResult((), tuple(warnings), onset / rate, T, strikes_s)
+
+    a_max = max(r[2] for r in raw)
+    partials = tuple(
+        Partial(
+            frequency_hz=float(f),
+            level_db=float(20.0 * np.log10(a / a_max)),
+            decay_s=float(tau),
+            frequency_uncertainty_hz=float(sd_f),
+            amplitude=float(a),
+            decay_uncertainty_s=float(sd_tau),
+            method=how,
+        )
+        for f, sd_f, a, tau, sd_tau, how in raw
+    )
+    for p in partials:
+        ring = 3.0 * p.decay_s if np.isfinite(p.decay_s) else T
+        cycles = p.frequency_hz * min(T, ring)
+        if cycles < FEW_CYCLES:
+            warnings.append(
+                f"partial at {p.frequency_hz:.2f} Hz rings for only {cycles:.0f} cycles; "
+                "its frequency is rough"
+            )
+    for p, q in pairwise(partials):
+        gap = q.frequency_hz - p.frequency_hz
+        if gap * T < 2.0:
+            warnings.append(
+                f"partials at {p.frequency_hz:.2f} and {q.frequency_hz:.2f} Hz are too close "
+                f"for this record; a recording of at least {2.0 / gap:.2f} s after the strike "
+                "would separate them"
+            )
+    return TapResult(partials, tuple(warnings), onset / rate, T, strikes_s)
+
+
+ROOM_NEIGHBOUR_CENTS = 40.0  # a room's response to a partial lies this close to it ...
+ROOM_DECAY_RATIO = 0.25  # ... and dies at least this much faster
+MAX_LATE_START_S = 0.25
+
+
+def _room_settling(raw: list[tuple] | None, rate: float) -> int:
+    """Samples to wait for the room's own response: three times the longest decay of the
+    short lines that stand beside a stronger, longer line (0: none)."""
+    if not raw:
+        return 0
+    taus = []
+    for f, _, a, tau, _, _ in raw:
+        for g, _, b, tau_g, _, _ in raw:
+            close = abs(float(ratio_to_cents(f / g))) < ROOM_NEIGHBOUR_CENTS
+            if close and g != f and b > a and np.isfinite(tau) and tau < ROOM_DECAY_RATIO * tau_g:
+                taus.append(tau)
+    if not taus:
+        return 0
+    return round(min(3.0 * max(taus), MAX_LATE_START_S) * rate)
+
+
+def _strong_gaps(raw: list[tuple] | None) -> NDArray[np.float64]:
+    """Gaps (Hz) between neighbouring lines that are both within 30 dB of the strongest and
+    within 20 dB of each other, with decays within a factor 4: a pair worth a longer record
+    (a doublet), unlike a weak or short ripple beside a loud line (a room's reverberation)."""
+    if not raw:
+        return np.empty(0)
+    rows = sorted(raw, key=lambda r: r[0])
+    top = max(r[2] for r in rows)
+    gaps = [
+        q[0] - p[0]
+        for p, q in pairwise(rows)
+        if min(p[2], q[2]) >= top * 10 ** (-30 / 20)
+        and min(p[2], q[2]) >= 0.1 * max(p[2], q[2])
+        and min(p[3], q[3]) >= ROOM_DECAY_RATIO * max(p[3], q[3])  # not a room's response
+    ]
+    return np.asarray(gaps)
+
+
+def _analyse(
+    seg: NDArray[np.float64], detect_args: tuple, min_snr_db: float
+) -> tuple[list[tuple] | None, list[str]]:
+    """Detect, fit and search the residual of one record: (f, sd_f, amplitude at the
+    record's start, tau, sd_tau, method) per line (None: no peak at all), and notes."""
+    rate, fmin, fmax_eff = detect_args[:3]
+    N = seg.size
+    T = N / rate
+    notes: list[str] = []
+
     f_peak, half_width, top_db = _detect(seg, *detect_args)
     if f_peak.size == 0:
-        warnings.append(
+        notes.append(
             f"no partials found between {fmin:g} and {fmax_eff:g} Hz "
             f"at {min_snr_db:g} dB above the noise floor"
         )
-        return TapResult((), tuple(warnings), onset / rate, T)
+        return None, notes
 
     for _round in range(MAX_ROUNDS):
         fits = _refine(seg, rate, f_peak, half_width, min_snr_db)
-        raw, dropped = _accepted(fits, rate, fmin, fmax_eff)
+        raw, dropped, weak = _accepted(fits, rate, fmin, fmax_eff)
         # A weak partial masked by a loud neighbour's skirt appears once the fitted
         # partials are subtracted: search the residual and refit with what it reveals.
         residual = seg - _synthesize(fits, N)
@@ -596,49 +926,84 @@ def find_partials(
         half_width = np.concatenate([hw_fit, hw_new])
         order = np.argsort(f_peak)
         f_peak, half_width = f_peak[order], half_width[order]
-    warnings += [f"dropped a peak near {f:.1f} Hz: the fit did not settle" for f in dropped]
 
-    # amplitude back at the onset, so that levels compare the strike itself
-    raw = [
-        (f, sd_f, a * np.exp((start - onset) / (tau * rate)), tau, sd_tau)
-        for f, sd_f, a, tau, sd_tau in raw
-    ]
-    raw.sort(key=lambda r: r[0])
-    raw = _merge_duplicates(raw, 0.25 / T)
-    if count is not None:
-        raw = sorted(sorted(raw, key=lambda r: -r[2])[:count], key=lambda r: r[0])
-    if not raw:
-        warnings.append("no partial survived the fit")
-        return TapResult((), tuple(warnings), onset / rate, T)
-
-    a_max = max(r[2] for r in raw)
-    partials = tuple(
-        Partial(
-            frequency_hz=float(f),
-            level_db=float(20.0 * np.log10(a / a_max)),
-            decay_s=float(tau),
-            frequency_uncertainty_hz=float(sd_f),
-            amplitude=float(a),
-            decay_uncertainty_s=float(sd_tau),
+    # A peak whose fit did not settle is still a line: report it from the spectrum.
+    peaks = _SpectrumPeaks(seg, rate, min_snr_db)
+    fitted_f = np.array([r[0] for r in raw])
+    # a weak fit is only a line when the spectrum shows it clearly (10 dB over detection)
+    candidates = [(f_d, 0.0) for f_d in dropped] + [(f_d, 10.0) for f_d in weak]
+    for f_d, margin_db in sorted(candidates):
+        if not fmin <= f_d <= fmax_eff:
+            continue
+        if fitted_f.size and np.min(np.abs(fitted_f - f_d)) < 1.0 / T:
+            continue
+        line = peaks.line_near(f_d, 1.0 / T, margin_db)
+        if line is None or any(abs(r[0] - line[0]) < 0.5 / T for r in raw if r[5] == "peak"):
+            continue
+        raw.append(line)
+        notes.append(
+            f"the fit near {line[0]:.1f} Hz did not settle; reported the spectral peak "
+            f"(+- {line[1]:.2g} Hz)"
         )
-        for f, sd_f, a, tau, sd_tau in raw
-    )
-    for p in partials:
-        cycles = p.frequency_hz * min(T, 3.0 * p.decay_s)
-        if cycles < FEW_CYCLES:
-            warnings.append(
-                f"partial at {p.frequency_hz:.2f} Hz rings for only {cycles:.0f} cycles; "
-                "its frequency is rough"
-            )
-    for p, q in pairwise(partials):
-        gap = q.frequency_hz - p.frequency_hz
-        if gap * T < 2.0:
-            warnings.append(
-                f"partials at {p.frequency_hz:.2f} and {q.frequency_hz:.2f} Hz are too close "
-                f"for this record; a recording of at least {2.0 / gap:.2f} s after the strike "
-                "would separate them"
-            )
-    return TapResult(partials, tuple(warnings), onset / rate, T)
+
+    return raw, notes
+
+
+class _SpectrumPeaks:
+    """Interpolated peaks of the detection spectrum (falling half-Hann, 4x zero padding)."""
+
+    def __init__(self, seg: NDArray[np.float64], rate: float, min_snr_db: float) -> None:
+        N = seg.size
+        self.N, self.rate = N, rate
+        self.window = np.cos(0.5 * np.pi * np.arange(N) / N) ** 2
+        nfft = sp_fft.next_fast_len(PAD * N, real=True)
+        S = np.abs(sp_fft.rfft((seg - seg.mean()) * self.window, nfft))
+        self.P_db = 20.0 * np.log10(S + 1e-300)
+        self.S = S
+        self.df = rate / nfft
+        self.f = np.arange(S.size) * self.df
+        self.floor_db = _noise_floor_db(self.f, self.P_db)
+        self.min_snr_db = min_snr_db
+        # the window's own -6 dB half-width (Hz), for telling the line's width from it
+        W = np.abs(sp_fft.rfft(self.window, nfft))
+        self.window_hw = float(np.argmax(W < 0.5 * W[0])) * self.df
+
+    def line_near(self, f_hz: float, reach_hz: float, margin_db: float = 0.0) -> tuple | None:
+        """(f, sd_f, amplitude, tau, sd_tau, "peak") of the largest peak within ``reach_hz``
+        of ``f_hz``, or None when nothing there stands above the noise."""
+        lo = max(1, int((f_hz - reach_hz) / self.df))
+        hi = min(self.P_db.size - 2, int(np.ceil((f_hz + reach_hz) / self.df)))
+        if hi <= lo:
+            return None
+        i = lo + int(np.argmax(self.P_db[lo : hi + 1]))
+        if not (self.P_db[i] >= self.P_db[i - 1] and self.P_db[i] >= self.P_db[i + 1]):
+            return None
+        snr_db = self.P_db[i] - self.floor_db[i]
+        if snr_db < self.min_snr_db + margin_db:
+            return None
+        a, b, c = self.P_db[i - 1], self.P_db[i], self.P_db[i + 1]
+        den = a - 2.0 * b + c
+        delta = float(np.clip(0.5 * (a - c) / den, -0.5, 0.5)) if den < 0 else 0.0
+        f = (i + delta) * self.df
+        level = b - 6.0
+        j0 = i
+        while j0 > 0 and self.P_db[j0] > level:
+            j0 -= 1
+        j1 = i
+        while j1 < self.P_db.size - 1 and self.P_db[j1] > level:
+            j1 += 1
+        hw = 0.5 * (j1 - j0) * self.df
+        # Lorentzian half-width sqrt(3) alpha / 2 pi on top of the window's own width: rough
+        excess = np.sqrt(max(hw * hw - self.window_hw**2, 0.0))
+        tau = np.sqrt(3.0) / (2.0 * np.pi * excess) if excess > 0 else float("nan")
+        alpha = 0.0 if not np.isfinite(tau) else 1.0 / (tau * self.rate)
+        gain = float(np.sum(self.window * np.exp(-alpha * np.arange(self.N))))
+        amp = 2.0 * self.S[i] / gain
+        # Honest spread: a tenth of the line's width, and never under 0.1 / record: the
+        # signal here did not follow the model, so the peak's position is all that is known.
+        T = self.N / self.rate
+        sd_f = max(0.1 * hw, 0.1 / T)
+        return (f, sd_f, amp, tau, float("nan"), "peak")
 
 
 def _synthesize(fits: list[_GroupFit], N: int) -> NDArray[np.float64]:
@@ -653,20 +1018,26 @@ def _synthesize(fits: list[_GroupFit], N: int) -> NDArray[np.float64]:
 
 def _accepted(
     fits: list[_GroupFit], rate: float, fmin: float, fmax: float
-) -> tuple[list[tuple], list[float]]:
-    """(f_hz, sd_f_hz, amplitude, tau_s, sd_tau_s) of the trustworthy fits; dropped f_hz."""
+) -> tuple[list[tuple], list[float], list[float]]:
+    """(f_hz, sd_f_hz, amplitude, tau_s, sd_tau_s, "fit") of the trustworthy fits, and the
+    starting frequencies (Hz) of the fits that did not settle (held by a bound) and of those
+    whose fitted amplitude is lost in its own uncertainty."""
     to_hz = rate / (2.0 * np.pi)
-    raw, dropped = [], []
+    raw, dropped, weak = [], [], []
     for fit in fits:
         for k in range(fit.omega.size):
             f_hz = fit.omega[k] * to_hz
             amp = abs(fit.C[k])
             if fit.at_bound[k] or not (fmin <= f_hz <= fmax):
-                dropped.append(f_hz)
-            elif amp >= MIN_AMPLITUDE_SD * fit.sd_amp[k]:  # else: noise, once fitted
+                dropped.append(float(fit.omega_start[k] * to_hz))
+            elif amp < MIN_AMPLITUDE_SD * fit.sd_amp[k]:
+                # noise once fitted, or a line the model does not describe: the spectrum decides
+                weak.append(float(fit.omega_start[k] * to_hz))
+            else:
                 tau = 1.0 / (fit.alpha[k] * rate)
-                raw.append((f_hz, fit.sd_omega[k] * to_hz, amp, tau, fit.sd_log_alpha[k] * tau))
-    return raw, dropped
+                sd_f = fit.sd_omega[k] * to_hz
+                raw.append((f_hz, sd_f, amp, tau, fit.sd_log_alpha[k] * tau, "fit"))
+    return raw, dropped, weak
 
 
 def _merge_duplicates(raw: list[tuple], min_gap_hz: float) -> list[tuple]:

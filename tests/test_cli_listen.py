@@ -55,7 +55,16 @@ def test_json_from_every_format(tmp_path, rate, subtype, channels):
     result = listen(path, "--json")
     assert result.exit_code == 0, result.stderr
     out = json.loads(result.stdout)  # stdout holds the JSON and nothing else
-    assert set(out) == {"a4_hz", "partials", "warnings"}  # no strike note for a bar
+    # no strike note for a bar
+    assert set(out) == {
+        "a4_hz",
+        "partials",
+        "warnings",
+        "identified_by",
+        "strikes_s",
+        "onset_s",
+        "analysed_s",
+    }
     assert out["warnings"] == []
     got = [p["frequency_hz"] for p in out["partials"]]
     assert len(got) == 3
@@ -63,7 +72,17 @@ def test_json_from_every_format(tmp_path, rate, subtype, channels):
         # 0.2 cent: project target; 16-bit quantisation noise is near -98 dBFS.
         assert abs(cents_off(g, f)) < 0.2
     first = out["partials"][0]
-    assert set(first) == {"frequency_hz", "note", "cents", "level_db", "t60_s", "uncertainty_hz"}
+    assert set(first) == {
+        "frequency_hz",
+        "note",
+        "cents",
+        "level_db",
+        "t60_s",
+        "uncertainty_hz",
+        "mode",
+        "method",
+    }
+    assert first["method"] == "fit"
     assert first["level_db"] == 0.0
     # one decay measure, T60 = tau ln(1000): the time to fall by 60 dB (20 log10 e^-t/tau)
     t60 = BAR_TAU[0] * math.log(1000.0)
@@ -110,11 +129,16 @@ def test_chime_reports_the_strike_note(tmp_path):
     assert result.exit_code == 0, result.stderr
     out = json.loads(result.stdout)
     assert len(out["partials"]) == 6
-    # The strike note rule lives in tonewright.acoustics.pitch; here: the measured partials give the
-    # same strike note as the true ones, to the 0.2 cent target.
-    assert abs(cents_off(out["strike_hz"], strike_note_hz(f))) < 0.2
-    # Published shape (Fletcher & Rossing 1998, ch. 19, memory): about an octave below mode 4.
-    assert abs(cents_off(out["strike_hz"], f[3] / 2)) < 50
+    # Published rule (Rossing 2000, Science of Percussion Instruments, ch. 3; Fletcher &
+    # Rossing 1998, sec. 19.2; from memory): the strike note is an octave below mode 4. The
+    # measured partials give it to the 0.2 cent target, and name the modes they used.
+    assert abs(cents_off(out["strike_hz"], f[3] / 2)) < 0.2
+    assert "mode 4" in out["strike_rule"]
+    used = out["strike_modes_hz"]
+    for k in (4, 5, 6):
+        assert abs(cents_off(used[f"bending {k}"], f[k - 1])) < 0.2
+    # the design side (acoustics.pitch) uses the same rule: one strike note everywhere
+    assert abs(cents_off(strike_note_hz(f), out["strike_hz"])) < 0.2
 
     table = listen(path, "--kind", "chime")
     assert "strike note:" in table.stdout
@@ -232,6 +256,16 @@ def test_clipping_warns_or_refuses(tmp_path):
     severe = np.clip(3.0 * y, -1.0, 1.0)  # a hot recording flattened for many cycles
     path = tmp_path / "severe.wav"
     sf.write(path, severe, 22050, subtype="FLOAT")
+    out = json.loads(listen(path, "--json").stdout)
+    # warned, and analysed after the clipped part: the partials are still found
+    assert any("clipped until" in w for w in out["warnings"])
+    got = [p["frequency_hz"] for p in out["partials"]]
+    for f in BAR_F:
+        assert min(abs(cents_off(g, f)) for g in got) < 0.2
+    flat = np.full(22050, 1.0)  # nothing but full scale
+    flat[::2] = -1.0
+    path = tmp_path / "flat.wav"
+    sf.write(path, flat, 22050, subtype="FLOAT")
     assert_one_line_error(listen(path), "badly clipped")
 
 
@@ -262,10 +296,20 @@ def test_write_wav_refuses_bad_samples(tmp_path):
         write_wav(tmp_path / "x.wav", np.zeros(10), 0)
 
 
-def test_to_mono_mixes_in_phase_channels():
-    x = np.column_stack([np.ones(4), 0.5 * np.ones(4)])
-    mono, note = to_mono(x)
-    assert np.allclose(mono, 0.75) and note is None
+def test_to_mono_aligns_flips_or_picks_channels():
+    rate = 22050
+    y = bar_strike(rate)
+    lag = 15  # 0.7 ms: a second microphone 23 cm further away
+    late = np.concatenate([np.zeros(lag), y[:-lag]])
+    mono, note = to_mono(np.column_stack([y, 0.8 * late]), rate)
+    assert note is None
+    assert np.corrcoef(mono[lag:-lag], y[lag:-lag])[0, 1] > 0.999  # aligned, not smeared
+    mono, note = to_mono(np.column_stack([y, -0.9 * late]), rate)
+    assert "flipped" in note and "cancel" in note
+    assert np.corrcoef(mono[lag:-lag], y[lag:-lag])[0, 1] > 0.999
+    other = np.random.default_rng(1).normal(0.0, 0.01, y.size)  # a different sound
+    mono, note = to_mono(np.column_stack([other, y]), rate)
+    assert "channel 2 of 2" in note and np.allclose(mono, y - np.median(y))
 
 
 def test_read_tap_reports_channels(tmp_path):

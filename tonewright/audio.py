@@ -1,9 +1,10 @@
 """Reading and writing WAV files for tap analysis and synthesised strikes.
 
-Reading goes through libsndfile (``soundfile``), which normalises 16-bit, 24-bit, 32-bit and
-float files to float64 in [-1, 1]. For analysis a recording is reduced to one channel (the mean
-of the channels, or the loudest channel when the mean cancels, as with a microphone pair wired
-out of phase) and checked: not silent, long enough after the strike, not badly clipped.
+Reading goes through libsndfile (``soundfile``; WAV, FLAC, OGG/Vorbis, and MP3 from
+libsndfile 1.1), which normalises 16-bit, 24-bit, 32-bit and
+float files to float64 in [-1, 1]. For analysis a recording is reduced to one channel (channels
+holding the same sound aligned, sign-corrected and averaged; otherwise the loudest alone, see
+``to_mono``) and checked: not silent, long enough after the strike, not badly clipped.
 Writing produces 24-bit PCM through a temporary file and a rename, so a half-written file
 never appears under the final name.
 """
@@ -37,8 +38,9 @@ SILENCE_DBFS = -80.0  # quieter than this is no strike at all
 MIN_AFTER_ONSET_S = 0.05  # shortest sound after the strike that can be analysed
 CLIP_LEVEL = 0.999  # a sample this close to full scale counts as clipped
 CLIP_RUN = 3  # this many clipped samples in a row make a clipped run
-SEVERE_CLIP_FRACTION = 0.01  # more than this share of the sound clipped is an error
-CANCEL_RATIO = 0.25  # mean of channels below this share of the loudest channel: it cancels
+SEVERE_CLIP_FRACTION = 0.5  # more than this share of the sound clipped is an error
+SAME_SOUND = 0.8  # correlation above which two channels hold the same sound
+MAX_LAG_S = 0.003  # microphones up to 1 m apart (about 3 ms of sound travel)
 
 
 @dataclass(frozen=True)
@@ -76,20 +78,53 @@ def read_wav(path: Path | str) -> tuple[NDArray[np.float64], int]:
     return data, int(rate)
 
 
-def to_mono(samples: ArrayLike) -> tuple[NDArray[np.float64], str | None]:
-    """One channel for analysis, and a warning when the channels cancel in the mix."""
+def to_mono(samples: ArrayLike, rate: float = 48000.0) -> tuple[NDArray[np.float64], str | None]:
+    """One channel for analysis, and a note when it is not a plain mix of all channels.
+
+    Channels holding the same sound (correlation above ``SAME_SOUND`` with the loudest one,
+    after the best lag up to ``MAX_LAG_S`` and its sign) are aligned, sign-corrected and
+    averaged, so an inverted or delayed microphone cannot cancel a partial. Otherwise (two
+    microphones at different places, or different takes) the loudest channel alone is used:
+    mixing different sounds would superpose two sets of phases per partial.
+    """
     x = np.asarray(samples, dtype=float)
     if x.ndim == 1:
         return x, None
-    mix = x.mean(axis=1)
+    if x.shape[1] == 1:
+        return x[:, 0].copy(), None
+    x = x - np.median(x, axis=0)
     rms = np.sqrt(np.mean(x**2, axis=0))
     loudest = int(np.argmax(rms))
-    if np.sqrt(np.mean(mix**2)) < CANCEL_RATIO * rms[loudest]:
-        return x[:, loudest].copy(), (
-            f"the channels cancel when mixed (wired out of phase?); analysed channel "
-            f"{loudest + 1} of {x.shape[1]} alone"
-        )
-    return mix, None
+    ref = x[:, loudest]
+    n = x.shape[0]
+    size = 1 << int(np.ceil(np.log2(2 * n)))
+    R = np.fft.rfft(ref, size)
+    max_lag = max(1, int(MAX_LAG_S * rate))
+    mix = ref.copy()
+    notes = []
+    used = 1
+    for c in range(x.shape[1]):
+        if c == loudest or rms[c] == 0:
+            continue
+        xc = np.fft.irfft(np.fft.rfft(x[:, c], size) * np.conj(R), size)
+        lags = np.concatenate([np.arange(0, max_lag + 1), np.arange(-max_lag, 0)])
+        vals = xc[lags % size]
+        k = int(np.argmax(np.abs(vals)))
+        lag, corr = int(lags[k]), vals[k] / (rms[c] * rms[loudest] * n)
+        if abs(corr) < SAME_SOUND:
+            return ref.copy(), (
+                f"the channels hold different sounds; analysed channel {loudest + 1} of "
+                f"{x.shape[1]} (the loudest) alone"
+            )
+        aligned = np.roll(x[:, c], -lag) * np.sign(corr) * rms[loudest] / rms[c]
+        mix += aligned
+        used += 1
+        if corr < 0:
+            notes.append(
+                f"channel {c + 1} is out of phase with channel {loudest + 1} (a plain mix "
+                "would cancel); flipped it before mixing"
+            )
+    return mix / used, ("; ".join(notes) or None)
 
 
 def clipped_runs(x: NDArray[np.float64], level: float = CLIP_LEVEL) -> NDArray[np.int64]:
@@ -145,7 +180,7 @@ def read_tap(path: Path | str) -> TapRecording:
     """Read a tap recording, check it, and reduce it to one channel."""
     data, rate = read_wav(path)
     warnings = list(check_recording(data, rate, name=f"WAV {Path(path).name}"))
-    mono, note = to_mono(data)
+    mono, note = to_mono(data, rate)
     if note:
         warnings.append(note)
     channels = 1 if data.ndim == 1 else data.shape[1]

@@ -10,7 +10,7 @@ and turns results into report objects (and their JSON form).
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass, replace
+from dataclasses import dataclass, field, replace
 from pathlib import Path
 from types import MappingProxyType
 from typing import Any
@@ -19,7 +19,13 @@ import numpy as np
 import tomli_w
 
 from tonewright.acoustics import CENTS_PER_LN, TapResult, find_partials
-from tonewright.acoustics.pitch import strike_note_hz
+from tonewright.acoustics.identify import (
+    Identification,
+    LineLabel,
+    StrikeNote,
+    label_lines,
+    tube_strike_note,
+)
 from tonewright.acoustics.preview import (
     MALLET_CONTACT_S,
     PreviewMode,
@@ -65,7 +71,9 @@ __all__ = [
     "blank_from_part_file",
     "calibrate_blank",
     "calibration_payload",
+    "expected_modes",
     "goals_of",
+    "identify_tap",
     "listen_to_tap",
     "mallet_contact_s",
     "material_toml",
@@ -85,8 +93,10 @@ MIN_TAP_RATE_HZ = 8000
 
 @dataclass(frozen=True)
 class TapReport:
-    """A recording's partials, the strike note of a chime (None for a bar or when it cannot
-    be given), and every warning of the reading and the analysis."""
+    """A recording's partials, what each one is (``labels``, in the same order), the strike
+    note of a chime (None for a bar or when it cannot be given), the expected part's modes
+    scaled to the tap (``expected``: label, Hz; empty without a part), the analysed samples
+    (for a plot) and every warning of the reading and the analysis."""
 
     name: str
     rate: int
@@ -94,6 +104,11 @@ class TapReport:
     result: TapResult
     strike_hz: float | None
     warnings: tuple[str, ...]
+    labels: tuple[LineLabel, ...] = ()
+    basis: str = "none"
+    expected: tuple[tuple[str, float], ...] = ()
+    strike: StrikeNote | None = None
+    samples: np.ndarray | None = field(default=None, compare=False, repr=False)
 
 
 def _check_rate(recording: TapRecording, name: str) -> None:
@@ -121,26 +136,87 @@ def _tap(
     return recording, result
 
 
+# Modes solved for the expected part: enough to name what a tap shows.
+EXPECTED_COUNTS = {"bending": 6, "torsion": 3, "lateral": 2}
+# Below half the expected part's lowest mode nothing is the bar: rumble and hum are ignored.
+FLOOR_FRACTION = 0.5
+
+
+def expected_modes(path: Path) -> tuple[tuple[str, int, float], ...]:
+    """(family, order, Hz) of the modes a tap on the part in ``path`` (a part file or a
+    design's result.json) can show."""
+    part_file, base = load_part(path)
+    part = part_file.to_part(base)
+    if isinstance(part, String):
+        raise InputError(f"--part {path.name}: a string; listen names the modes of bars and tubes")
+    families = excited_families(part) + (() if not isinstance(part, Bar) else ("lateral",))
+    counts = {fam: EXPECTED_COUNTS[fam] for fam in families if fam in EXPECTED_COUNTS}
+    result = solve(
+        part, counts, tol_cents=part_file.model.tolerance_cents, theory=part_file.model.theory
+    )
+    return tuple((m.family, m.order, m.frequency_hz) for m in result.modes)
+
+
+def identify_tap(
+    result: TapResult, predicted: tuple[tuple[str, int, float], ...] | None = None
+) -> Identification:
+    """Labels of a tap's partials (against the expected modes, or a ratio pattern)."""
+    ps = result.partials
+    return label_lines(
+        [p.frequency_hz for p in ps], [p.level_db for p in ps], [p.decay_s for p in ps], predicted
+    )
+
+
 def listen_to_tap(
     wav: Path,
     *,
     count: int | None = None,
     kind: str = "bar",
-    fmin: float = 20.0,
+    fmin: float | None = None,
     fmax: float | None = None,
+    part: Path | None = None,
 ) -> TapReport:
-    """The partials of a recorded tap on a bar or chime (``kind`` chime adds the strike)."""
+    """The partials of a recorded tap on a bar or chime, each named (``kind`` chime adds the
+    strike note); with ``part`` the names come from that part's modes."""
     if kind not in KINDS:
         raise InputError(f"--kind: got {kind!r}; choose one of {', '.join(KINDS)}")
+    predicted = expected_modes(part) if part is not None else None
+    if fmin is None:
+        fmin = 20.0
+        if predicted:
+            # the material may move every mode by up to the identification's scale factor
+            fmin = max(fmin, FLOOR_FRACTION * min(f for _, _, f in predicted) / 1.6)
     recording, result = _tap(wav, count, fmin, fmax)
     warnings = [*recording.warnings, *result.warnings]
-    strike = None
+    ident = identify_tap(result, predicted)
+    expected: tuple[tuple[str, float], ...] = ()
+    if predicted:
+        expected = tuple((f"{fam} {k}", ident.scale * f) for fam, k, f in predicted)
+    strike_hz, strike = None, None
     if kind == "chime":
-        try:
-            strike = strike_note_hz(result.frequencies_hz)
-        except InputError as exc:
-            warnings.append(f"no strike note: {exc}")
-    return TapReport(wav.name, recording.rate, kind, result, strike, tuple(warnings))
+        strike = tube_strike_note(
+            [p.frequency_hz for p in result.partials], [p.level_db for p in result.partials]
+        )
+        if strike is None:
+            warnings.append(
+                "no strike note: no partials in the pattern of free-free bending modes 4, 5, 6 "
+                "(81 : 121 : 169); tap the tube near one end and record again"
+            )
+        else:
+            strike_hz = strike.f_hz
+    return TapReport(
+        wav.name,
+        recording.rate,
+        kind,
+        result,
+        strike_hz,
+        tuple(warnings),
+        ident.labels,
+        ident.basis,
+        expected,
+        strike,
+        recording.samples,
+    )
 
 
 @dataclass(frozen=True, eq=False)
@@ -173,13 +249,23 @@ def measure_partials(
         raise InputError("--sd-cents: only for --partials; a recording gives its own")
     if not 1 <= count <= 50:
         raise InputError(f"--count {count}: give 1 to 50 partials")
-    recording, tap = _tap(wav, count, fmin)
-    f = np.array([p.frequency_hz for p in tap.partials])
-    sd = CENTS_PER_LN * np.array([p.frequency_uncertainty_hz for p in tap.partials]) / f
+    recording, tap = _tap(wav, None, fmin)
+    labels = identify_tap(tap).labels
+    kept = [p for p, lab in zip(tap.partials, labels, strict=True) if lab.from_bar]
+    notes = [
+        f"left out {p.frequency_hz:.2f} Hz: {lab.text}"
+        for p, lab in zip(tap.partials, labels, strict=True)
+        if not lab.from_bar
+    ]
+    kept = sorted(sorted(kept, key=lambda p: -p.amplitude)[:count], key=lambda p: p.frequency_hz)
+    if not kept:
+        raise InputError(f"WAV {wav.name}: no partial of the bar found (only {', '.join(notes)})")
+    f = np.array([p.frequency_hz for p in kept])
+    sd = CENTS_PER_LN * np.array([p.frequency_uncertainty_hz for p in kept]) / f
     sd = np.where(np.isfinite(sd) & (sd > 0), sd, np.nan)
-    decay = np.array([p.decay_s for p in tap.partials])
+    decay = np.array([p.decay_s for p in kept])
     decay = np.where(np.isfinite(decay) & (decay > 0), decay, np.nan)
-    return Measurement(f, sd, decay, (*recording.warnings, *tap.warnings))
+    return Measurement(f, sd, decay, (*recording.warnings, *tap.warnings, *notes))
 
 
 # ---------------------------------------------------------------------------------------------

@@ -19,7 +19,8 @@ from rich.table import Table
 from tonewright.acoustics import t60_from_decay
 from tonewright.acoustics.pitch import hz_to_note
 from tonewright.bench import TapReport, listen_to_tap
-from tonewright.cli_support import check_a4, guarded
+from tonewright.cli_support import atomic_write_bytes, check_a4, guarded
+from tonewright.errors import InputError
 
 __all__ = ["listen", "register"]
 
@@ -30,6 +31,7 @@ def _finite(value: float) -> float | None:
 
 
 def _payload(report: TapReport, a4_hz: float = 440.0) -> dict:
+    labels = report.labels or (None,) * len(report.result.partials)
     out: dict = {
         "a4_hz": a4_hz,
         # one decay measure everywhere: T60, the time the level takes to fall by 60 dB
@@ -41,24 +43,45 @@ def _payload(report: TapReport, a4_hz: float = 440.0) -> dict:
                 "level_db": round(p.level_db, 2),
                 "t60_s": _finite(round(float(t60_from_decay(p.decay_s)), 4)),
                 "uncertainty_hz": _finite(float(f"{p.frequency_uncertainty_hz:.3g}")),
+                "mode": None if lab is None else lab.text,
+                "method": p.method,
             }
-            for p in report.result.partials
+            for p, lab in zip(report.result.partials, labels, strict=True)
         ],
+        "identified_by": report.basis,
+        "strikes_s": [round(t, 4) for t in report.result.strikes_s],
+        "onset_s": round(report.result.onset_s, 4),
+        "analysed_s": round(report.result.analysed_s, 4),
     }
+    if report.expected:
+        out["expected"] = [{"mode": m, "frequency_hz": round(f, 3)} for m, f in report.expected]
     if report.kind == "chime":
         out["strike_hz"] = None if report.strike_hz is None else round(report.strike_hz, 6)
+        if report.strike is not None:
+            out["strike_rule"] = report.strike.rule
+            out["strike_modes_hz"] = {
+                f"bending {k}": None if f is None else round(f, 4)
+                for k, f in zip((4, 5, 6), report.strike.modes_hz, strict=True)
+            }
     out["warnings"] = list(report.warnings)
     return out
 
 
 def _table(report: TapReport, title: str, a4_hz: float = 440.0) -> Table:
     table = Table(title=title, box=box.SIMPLE_HEAD, title_justify="left")
-    for name in ("#", "Hz", "± Hz", "note", "cents", "level dB", "T60 s", "ratio"):
-        table.add_column(name, justify="left" if name == "note" else "right")
+    for name in ("#", "Hz", "± Hz", "note", "cents", "level dB", "T60 s", "ratio", "mode"):
+        table.add_column(
+            name, justify="left" if name in ("note", "mode") else "right", no_wrap=name == "mode"
+        )
     partials = report.result.partials
-    f1 = partials[0].frequency_hz if partials else math.nan
-    for i, p in enumerate(partials, start=1):
+    labels = report.labels or (None,) * len(partials)
+    bars = [p for p, lab in zip(partials, labels, strict=True) if lab is None or lab.from_bar]
+    f1 = (bars or partials)[0].frequency_hz if partials else math.nan
+    for i, (p, lab) in enumerate(zip(partials, labels, strict=True), start=1):
         note, off = hz_to_note(p.frequency_hz, a4_hz)
+        mode = "" if lab is None else lab.text
+        if p.method == "peak":
+            mode += " [spectral peak]"
         table.add_row(
             str(i),
             f"{p.frequency_hz:.3f}",
@@ -66,15 +89,16 @@ def _table(report: TapReport, title: str, a4_hz: float = 440.0) -> Table:
             note,
             f"{off:+.1f}",
             f"{p.level_db:.1f}",
-            f"{float(t60_from_decay(p.decay_s)):.2f}",
+            f"{float(t60_from_decay(p.decay_s)):.2f}" if math.isfinite(p.decay_s) else "-",
             f"{p.frequency_hz / f1:.3f}",
+            mode.strip(),
         )
     return table
 
 
 @guarded
 def listen(
-    wav: Annotated[Path, typer.Argument(help="Recording of one strike (WAV).")],
+    wav: Annotated[Path, typer.Argument(help="Recording of a strike (WAV, FLAC, OGG or MP3).")],
     json_out: Annotated[
         bool, typer.Option("--json", help="Print the partials as JSON on stdout.")
     ] = False,
@@ -84,33 +108,66 @@ def listen(
     kind: Annotated[
         str, typer.Option("--kind", help="bar, or chime to add the strike note.")
     ] = "bar",
-    fmin: Annotated[float, typer.Option("--fmin", help="Lowest frequency searched, Hz.")] = 20.0,
+    fmin: Annotated[
+        float | None,
+        typer.Option(
+            "--fmin",
+            help="Lowest frequency searched, Hz (default 20, or half the part's lowest mode).",
+        ),
+    ] = None,
     fmax: Annotated[
         float | None, typer.Option("--fmax", help="Highest frequency searched, Hz.")
     ] = None,
+    part: Annotated[
+        Path | None,
+        typer.Option("--part", help="Part file or result.json: name the lines by its modes."),
+    ] = None,
+    plot: Annotated[
+        Path | None,
+        typer.Option("--plot", help="Draw the labelled spectrum to this PNG (or .svg) file."),
+    ] = None,
+    force: Annotated[
+        bool, typer.Option("--force", help="Replace an existing --plot file.")
+    ] = False,
     a4: Annotated[
         float, typer.Option("--a4", help="Pitch reference A4 in Hz for the note names.")
     ] = 440.0,
 ) -> None:
-    """Measure the partials of a recorded tap: frequency, note, level and T60 decay."""
+    """Measure the partials of a recorded tap (frequency, note, level, T60 decay) and name them."""
     check_a4(a4)
-    report = listen_to_tap(wav, count=count, kind=kind, fmin=fmin, fmax=fmax)
+    if plot is not None:
+        if plot.suffix.lower() not in (".png", ".svg"):
+            raise InputError(f"--plot {plot}: give a .png or .svg file name")
+        if plot.exists() and not force:
+            raise InputError(f"--plot {plot} exists already; pass --force to replace it")
+    report = listen_to_tap(wav, count=count, kind=kind, fmin=fmin, fmax=fmax, part=part)
+    if plot is not None:
+        from tonewright.tap_plot import tap_figure  # matplotlib only when drawing
+
+        atomic_write_bytes(plot, tap_figure(report, plot.suffix.lower()[1:]), overwrite=force)
     if json_out:
         typer.echo(json.dumps(_payload(report, a4), indent=2))
-        return
-    result = report.result
-    title = (
-        f"{report.name}: {len(result.partials)} partial(s), {report.rate} Hz, "
-        f"strike at {result.onset_s:.3f} s, {result.analysed_s:.2f} s analysed"
-    )
-    console = Console(highlight=False)
-    console.print(_table(report, title, a4))
-    if report.strike_hz is not None:
-        note, off = hz_to_note(report.strike_hz, a4)
-        console.print(f"strike note: {report.strike_hz:.2f} Hz ({note} {off:+.1f} cents)")
-    console.print(
-        f"notes in equal temperament at A4 = {a4:g} Hz; T60: seconds for a partial to fall by 60 dB"
-    )
+    else:
+        result = report.result
+        title = (
+            f"{report.name}: {len(result.partials)} partial(s), {report.rate} Hz, "
+            f"strike at {result.onset_s:.3f} s, {result.analysed_s:.2f} s analysed; "
+            f"modes named from {report.basis}"
+        )
+        console = Console(highlight=False)
+        if not console.is_terminal:
+            console = Console(highlight=False, width=132)  # a file or a pipe: room for names
+        console.print(_table(report, title, a4))
+        if report.strike_hz is not None:
+            note, off = hz_to_note(report.strike_hz, a4)
+            console.print(
+                f"strike note: {report.strike_hz:.2f} Hz ({note} {off:+.1f} cents), "
+                f"{report.strike.rule}"
+            )
+        console.print(
+            f"notes in equal temperament at A4 = {a4:g} Hz; T60: seconds for a partial to fall "
+            "by 60 dB"
+        )
     for w in report.warnings:
         typer.echo(f"warning: {w}", err=True)
 
