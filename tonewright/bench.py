@@ -70,6 +70,7 @@ __all__ = [
     "mallet_contact_s",
     "material_toml",
     "measure_partials",
+    "min_thickness_of",
     "preview_sound",
 ]
 
@@ -493,6 +494,31 @@ def goals_of(part_file: PartFile, base: Path | None) -> tuple[Goal, ...]:
             "tunes the partials of a bar: give ratios, cents, notes or a partials profile"
         )
     return tuple(Goal(p.family, p.order, p.f_hz, p.tolerance_cents) for p in target.partials)
+
+
+DEFAULT_MIN_SHARE = 0.2  # minimum thickness, as a share of the blank, when the file gives none
+
+
+def min_thickness_of(part_file: PartFile, option_mm: float | None = None) -> float:
+    """The thinnest a bar may become (m): ``--min-thickness`` (mm), else the file's
+    ``[design] min_thickness``, else a share of the blank."""
+    t0 = part_file.bar.thickness
+    if option_mm is not None:
+        if not (math.isfinite(option_mm) and 0 < option_mm * 1e-3 < t0):
+            raise InputError(
+                f"--min-thickness {option_mm:g}: give mm above 0 and under the blank thickness "
+                f"{t0 * 1e3:g} mm"
+            )
+        return option_mm * 1e-3
+    table = part_file.design
+    value = table.min_thickness if table.min_thickness is not None else DEFAULT_MIN_SHARE * t0
+    if value >= t0:
+        raise InputError(
+            f"design.min_thickness {value * 1e3:g} mm must be under the blank thickness "
+            f"{t0 * 1e3:g} mm"
+        )
+    return value
+
 
 
 @dataclass(frozen=True)

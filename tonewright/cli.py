@@ -27,6 +27,7 @@ _COMMAND_MODULES = [
     "listen",
     "calibrate",
     "sound",
+    "workbench",
 ]
 
 for _name in _COMMAND_MODULES:
