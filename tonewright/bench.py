@@ -37,12 +37,14 @@ from tonewright.optimizer import (
     Advice,
     AdviceOptions,
     Calibration,
+    Cut,
     CutLimits,
     Goal,
     Step,
     advise,
     calibrate_bar,
 )
+from tonewright.optimizer.cutplan import apply_cut
 from tonewright.partfile import PartFile, load_part
 from tonewright.tuning import resolve
 from tonewright.units import parse_length, parse_position
@@ -520,7 +522,6 @@ def min_thickness_of(part_file: PartFile, option_mm: float | None = None) -> flo
     return value
 
 
-
 @dataclass(frozen=True)
 class AdviseRequest:
     """What ``tonewright advise`` was asked: the bar as it is (part file already read), its
@@ -538,6 +539,7 @@ class AdviseRequest:
     one_sided: bool = False
     count: int = 12
     fmin: float = 20.0
+    cuts_done: tuple[Cut, ...] = ()  # cuts made since the file's profile was measured
 
 
 @dataclass(frozen=True, eq=False)
@@ -662,6 +664,13 @@ def advise_bar(request: AdviseRequest) -> AdviceReport:
     measured = measure_partials(r.wav, r.partials, count=r.count, fmin=r.fmin)
     warnings = list(measured.warnings)
     bar: Bar = part_file.to_part(r.base)
+    for done in r.cuts_done:
+        bar = apply_cut(bar, done)
+    if r.cuts_done:
+        warnings.append(
+            f"the bar is taken as the file gives it with {len(r.cuts_done)} recorded cut(s) "
+            "made as advised; if a cut went otherwise, measure with calipers and update the file"
+        )
     thinnest_now = float(np.min(bar.thickness(np.linspace(0.0, bar.length, 2001))))
     if thinnest_now < h_min:
         warnings.append(

@@ -79,11 +79,34 @@ class InstrumentBody(_Body):
 
 
 class CutBody(_Body):
+    """A cut done at the bench: a step of the advice as made (mm), or a note of another cut."""
+
     bar: str
     description: str
-    centre_mm: float | None = None
+    windows_mm: list[tuple[float, float]] | None = None
     depth_mm: float | None = None
-    width_mm: float | None = None
+    tool_width_mm: float | None = None
+    eased_edge_mm: float = 0.0
+
+
+MAX_RECORDED_DEPTH_MM = 3.0  # the advice's own limit on one step
+
+
+def _cut_of(data: dict[str, Any]):
+    """The recorded cut as the cut planner's ``Cut`` (None for a note without a window)."""
+    from tonewright.optimizer import Cut
+
+    if not data.get("windows_mm") or data.get("depth_mm") is None:
+        return None
+    windows = tuple((a * 1e-3, b * 1e-3) for a, b in data["windows_mm"])
+    width = (data.get("tool_width_mm") or 0.0) * 1e-3
+    return Cut(
+        0.5 * sum(windows[0]),
+        width,
+        data["depth_mm"] * 1e-3,
+        windows,
+        data.get("eased_edge_mm", 0.0) * 1e-3,
+    )
 
 
 def _error(message: str, status: int = 422) -> JSONResponse:
@@ -173,8 +196,9 @@ def _tap_payload(report) -> dict[str, Any]:
     }
 
 
-def _analyse_tap(workshop: Workshop, bar: str, wav: Path) -> dict[str, Any]:
-    """Listen to the tap; with a part file that has a target, advise the next cut too."""
+def _analyse_tap(workshop: Workshop, bar: str, wav: Path, cuts_done=()) -> dict[str, Any]:
+    """Listen to the tap; with a part file that has a target, advise the next cut too, on the
+    bar as the file gives it with the recorded cuts applied."""
     from tonewright.bench import AdviseRequest, advise_bar, listen_to_tap, min_thickness_of
     from tonewright.partfile import load_part
 
@@ -190,6 +214,7 @@ def _analyse_tap(workshop: Workshop, bar: str, wav: Path) -> dict[str, Any]:
             title=part_file.title or part_path.stem,
             min_thickness_m=min_thickness_of(part_file),
             wav=wav,
+            cuts_done=tuple(cuts_done),
         )
         out["advice"] = dict(advise_bar(request).payload)
     return out
@@ -249,9 +274,11 @@ def create_app(folder: Path, *, allow_remote: bool = False) -> FastAPI:
         for name in workshop.part_files():
             text = (workshop.root / name).read_text(encoding="utf-8", errors="replace")
             files.append({"name": name, "kind": _kind_of(text)})
+        bench = [f["name"] for f in files if f["kind"] in ("bar", "tube")]
         return {
             "folder": str(workshop.root),
             "files": files,
+            "bench_bars": bench + workshop.designed_parts(),
             "history": store.bars_with_history(),
             "running": [{"id": j.id, "kind": j.kind, "name": j.name} for j in board.running()],
         }
@@ -397,18 +424,29 @@ def create_app(folder: Path, *, allow_remote: bool = False) -> FastAPI:
             for row in csv.DictReader(io.StringIO(text)):
                 note = row.get("note") or next(iter(row.values()), "")
                 rows[note] = row
+        history = store.bars_with_history()
         bars = []
         for b in plan.bars:
             part = b.part.get("bar", {})
             row = rows.get(b.note)
+            designed = run / "bars" / b.note / "part.toml"
+            bench_name = workshop.relative(designed) if designed.is_file() else None
+            bench = history.get(bench_name or "", {"taps": 0, "cuts": 0, "last_tap": None})
+            status = (row or {}).get("status", "not designed")
+            if bench["cuts"]:
+                status = "cut"
+            if _tuned(bench["last_tap"]):
+                status = "tuned"
             bars.append(
                 {
                     "note": b.note,
                     "length_mm": part.get("length"),
                     "width_mm": part.get("width"),
                     "thickness_mm": part.get("thickness"),
-                    "status": (row or {}).get("status", "not designed"),
+                    "status": status,
+                    "design_status": (row or {}).get("status", "not designed"),
                     "summary": row,
+                    "bench": {"name": bench_name, "taps": bench["taps"], "cuts": bench["cuts"]},
                 }
             )
         figures = [
@@ -501,7 +539,9 @@ def create_app(folder: Path, *, allow_remote: bool = False) -> FastAPI:
         atomic_write_bytes(taps / name, bytes(data))
         try:
             with threadpool_limits(limits=1, user_api="blas"):
-                result = await asyncio.to_thread(_analyse_tap, workshop, bar, taps / name)
+                done = [_cut_of(e.data) for e in store.history(bar) if e.kind == "cut"]
+                cuts = [c for c in done if c is not None]
+                result = await asyncio.to_thread(_analyse_tap, workshop, bar, taps / name, cuts)
         except InputError:
             os.unlink(taps / name)
             raise
@@ -510,11 +550,29 @@ def create_app(folder: Path, *, allow_remote: bool = False) -> FastAPI:
 
     @app.post("/api/bench/cut")
     def cut(body: CutBody) -> dict[str, Any]:
-        workshop.path(body.bar, "bar")
-        for field_name in ("centre_mm", "depth_mm", "width_mm"):
-            value = getattr(body, field_name)
+        from tonewright.partfile import load_part
+
+        part_file, _ = load_part(workshop.path(body.bar, "bar"))
+        length_mm = (part_file.bar or part_file.tube or part_file.string).length * 1e3
+        if body.depth_mm is not None and not (
+            math.isfinite(body.depth_mm) and 0 < body.depth_mm <= MAX_RECORDED_DEPTH_MM
+        ):
+            raise InputError(
+                f"depth_mm {body.depth_mm:g}: give the depth cut, above 0 and at most "
+                f"{MAX_RECORDED_DEPTH_MM:g} mm a step"
+            )
+        for a, b in body.windows_mm or []:
+            if not (math.isfinite(a) and math.isfinite(b) and 0 <= a < b <= length_mm):
+                raise InputError(
+                    f"windows_mm [{a:g}, {b:g}]: give start < end within the bar, 0 to "
+                    f"{length_mm:g} mm"
+                )
+        for name in ("tool_width_mm", "eased_edge_mm"):
+            value = getattr(body, name)
             if value is not None and not (math.isfinite(value) and value >= 0):
-                raise InputError(f"{field_name} {value}: give a length in mm, 0 or more")
+                raise InputError(f"{name} {value:g}: give a length in mm, 0 or more")
+        if body.windows_mm and body.depth_mm is None:
+            raise InputError("depth_mm: a cut over windows needs its depth")
         entry = store.add(body.bar, "cut", body.model_dump())
         return {"id": entry.id}
 
@@ -529,6 +587,17 @@ def create_app(folder: Path, *, allow_remote: bool = False) -> FastAPI:
         }
 
     return app
+
+
+def _tuned(last_tap: dict[str, Any] | None) -> bool:
+    """Every tuned partial of the last tap within its tolerance (measured, not modelled)."""
+    advice = (last_tap or {}).get("advice")
+    if not advice or not advice.get("partials"):
+        return False
+    return all(
+        p["from"] == "measured" and abs(p["now_cents"]) <= p["tolerance_cents"]
+        for p in advice["partials"]
+    )
 
 
 def _recorded(store: Store, run_id: int, work):

@@ -53,6 +53,12 @@ class Workshop:
         """Every TOML file at the top of the folder, by name."""
         return sorted(p.name for p in self.root.glob("*.toml") if p.is_file())
 
+    def designed_parts(self) -> list[str]:
+        """The part files that designs and instrument runs wrote: the bars one cuts and taps."""
+        found = [*self.root.glob(f"{DESIGNS_DIR}/*/part.toml")]
+        found += self.root.glob(f"{RUNS_DIR}/*/bars/*/part.toml")
+        return sorted(self.relative(p) for p in found if p.is_file())
+
     def design_dir(self, part_name: str) -> Path:
         return self.root / DESIGNS_DIR / Path(part_name).stem
 

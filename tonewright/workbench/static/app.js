@@ -51,7 +51,9 @@ async function loadWorkshop() {
   };
   fill($("bar-file"), ["bar", "tube", "string", "unreadable", "other"]);
   fill($("inst-file"), ["instrument"]);
-  fill($("bench-bar"), ["bar", "tube"]);
+  const bench = $("bench-bar"), keep = bench.value;
+  bench.innerHTML = workshop.bench_bars.map((n) => `<option>${esc(n)}</option>`).join("");
+  if ([...bench.options].some((o) => o.value === keep)) bench.value = keep;
 }
 
 // -- a bar ---------------------------------------------------------------------------------
@@ -154,14 +156,13 @@ async function openInstrument() {
   $("inst-error").textContent = ""; $("inst-table").innerHTML = ""; $("inst-figures").innerHTML = "";
   if (!$("inst-file").value) { $("inst-status").textContent = "no instrument file in this folder"; return; }
   const inst = await api("GET", `/api/instrument?name=${encodeURIComponent($("inst-file").value)}`);
-  const hist = workshop.history || {};
   const rows = inst.bars.map((b) => {
     const s = b.summary || {};
-    const taps = Object.entries(hist).filter(([k]) => k.includes(b.note)).map(([, v]) => v.taps).reduce((a, c) => a + c, 0);
+    const bench = b.bench.taps || b.bench.cuts ? `${b.bench.taps} taps, ${b.bench.cuts} cuts` : "";
     return `<tr><td>${esc(b.note)}</td><td>${fmt(b.length_mm)}</td><td>${fmt(b.width_mm)}</td><td>${fmt(b.thickness_mm)}</td>` +
-      `<td class="${esc(b.status)}">${esc(b.status)}</td><td>${esc(s.message || "")}</td><td>${taps || ""}</td></tr>`;
+      `<td class="${esc(b.design_status)}">${esc(b.status)}</td><td>${esc(s.message || "")}</td><td>${esc(bench)}</td></tr>`;
   }).join("");
-  $("inst-table").innerHTML = `<tr><th>note</th><th>length mm</th><th>width mm</th><th>thickness mm</th><th>status</th><th>binding limit / message</th><th>taps</th></tr>${rows}`;
+  $("inst-table").innerHTML = `<tr><th>note</th><th>length mm</th><th>width mm</th><th>thickness mm</th><th>status</th><th>binding limit / message</th><th>at the bench</th></tr>${rows}`;
   $("inst-figures").innerHTML = inst.figures.map((f) => `<img alt="${esc(f)}" src="/api/file?path=${encodeURIComponent(f)}&t=${Date.now()}">`).join("");
   $("inst-status").textContent = `${inst.title}: ${inst.bars.length} bars`;
 }
@@ -240,7 +241,7 @@ function showTap(r) {
     `<p class="muted">Predicted after it: ${predicted}</p><p class="muted">${esc(a.message)}</p>` +
     `<button id="bench-cut-done">I made this cut</button>`;
   $("bench-cut-done").addEventListener("click", async () => {
-    await api("POST", "/api/bench/cut", { bar: $("bench-bar").value, description: `cut at ${(step.positions_mm || []).join(" & ")} mm, ${step.depth_mm} mm deep`, centre_mm: (step.positions_mm || [null])[0], depth_mm: step.depth_mm });
+    await api("POST", "/api/bench/cut", { bar: $("bench-bar").value, description: `cut at ${(step.positions_mm || []).join(" & ")} mm, ${step.depth_mm} mm deep`, windows_mm: step.windows_mm, depth_mm: step.depth_mm, tool_width_mm: step.tool_width_mm, eased_edge_mm: step.eased_edge_mm });
     await showHistory();
   });
 }
