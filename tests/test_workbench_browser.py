@@ -180,6 +180,7 @@ def test_bench_page_records_a_tap_and_shows_the_next_cut(server, browser, tmp_pa
     for f in (TAP_HZ[0], TAP_HZ[2]):
         assert min(abs(1200 * np.log2(g / f)) for g in shown) < 5.0, shown
     assert "mm deep" in by_id("next-cut").text
+    assert browser.find_elements("css selector", "#bench-map svg polyline")  # the tuning map
     assert "cannot be put back" in by_id("bench-caution").text
     by_id("bench-cut-done").click()
     _wait(

@@ -159,10 +159,11 @@ async function openInstrument() {
   const rows = inst.bars.map((b) => {
     const s = b.summary || {};
     const bench = b.bench.taps || b.bench.cuts ? `${b.bench.taps} taps, ${b.bench.cuts} cuts` : "";
-    return `<tr><td>${esc(b.note)}</td><td>${fmt(b.length_mm)}</td><td>${fmt(b.width_mm)}</td><td>${fmt(b.thickness_mm)}</td>` +
+    const cents = [1, 2, 3, 4].filter((k) => s[`p${k}_partial`]).map((k) => `${esc(s[`p${k}_partial`])} ${esc(s[`p${k}_error_cents`])}`).join(", ");
+    return `<tr><td>${esc(b.note)}</td><td>${fmt(b.length_mm)}</td><td>${fmt(b.width_mm)}</td><td>${fmt(b.thickness_mm)}</td><td>${cents}</td>` +
       `<td class="${esc(b.design_status)}">${esc(b.status)}</td><td>${esc(s.message || "")}</td><td>${esc(bench)}</td></tr>`;
   }).join("");
-  $("inst-table").innerHTML = `<tr><th>note</th><th>length mm</th><th>width mm</th><th>thickness mm</th><th>status</th><th>binding limit / message</th><th>at the bench</th></tr>${rows}`;
+  $("inst-table").innerHTML = `<tr><th>note</th><th>length mm</th><th>width mm</th><th>thickness mm</th><th>error, cents</th><th>status</th><th>binding limit / message</th><th>at the bench</th></tr>${rows}`;
   $("inst-figures").innerHTML = inst.figures.map((f) => `<img alt="${esc(f)}" src="/api/file?path=${encodeURIComponent(f)}&t=${Date.now()}">`).join("");
   $("inst-status").textContent = `${inst.title}: ${inst.bars.length} bars`;
 }
@@ -222,6 +223,22 @@ async function sendTap(bytes) {
   } catch (e) { $("bench-error").textContent = e.message; $("bench-status").textContent = ""; }
 }
 
+const PALETTE = ["#1b6f8a", "#c0392b", "#7b4fa0", "#5a8f29", "#b5651d"];
+
+function lineChart(series, xLabel, yLabel, xs) {
+  // series: [{name, values}] over the common xs; a zero line; the legend names each colour
+  const w = 520, h = 200, l = 48, r = 10, t = 10, b = 34;
+  const all = series.flatMap((s) => s.values).concat([0]);
+  let lo = Math.min(...all), hi = Math.max(...all); if (hi - lo < 1e-9) { hi += 1; lo -= 1; }
+  const x0 = Math.min(...xs), x1 = Math.max(...xs) === x0 ? x0 + 1 : Math.max(...xs);
+  const X = (x) => l + (w - l - r) * (x - x0) / (x1 - x0), Y = (y) => t + (h - t - b) * (hi - y) / (hi - lo);
+  const lines = series.map((s, i) => `<polyline fill="none" stroke="${PALETTE[i % 5]}" stroke-width="2" points="${s.values.map((v, k) => `${X(xs[k]).toFixed(1)},${Y(v).toFixed(1)}`).join(" ")}"/>` +
+    `<text x="${l + 6 + 110 * i}" y="${h - 4}" font-size="11" fill="${PALETTE[i % 5]}">${esc(s.name)}</text>`).join("");
+  return `<svg class="shapes" viewBox="0 0 ${w} ${h}" width="${w}"><line x1="${l}" x2="${w - r}" y1="${Y(0)}" y2="${Y(0)}" stroke="#999" stroke-dasharray="3 3"/>` +
+    `<text x="4" y="${t + 10}" font-size="10">${esc(yLabel)}</text><text x="${w - r}" y="${h - 18}" font-size="10" text-anchor="end">${esc(xLabel)}</text>` +
+    `<text x="${l - 4}" y="${Y(hi) + 4}" font-size="10" text-anchor="end">${fmt(hi, 1)}</text><text x="${l - 4}" y="${Y(lo) + 4}" font-size="10" text-anchor="end">${fmt(lo, 1)}</text>${lines}</svg>`;
+}
+
 let lastStep = null;
 function showTap(r) {
   const t = r.tap;
@@ -237,9 +254,14 @@ function showTap(r) {
   lastStep = step || null;
   if (!step) { $("bench-cut").innerHTML = `<p>${esc(a.message)}</p>`; return; }
   const predicted = (step.predicted || []).map((p) => `${esc(p.partial)} ${fmt(p.hz, 1)} Hz (${p.cents >= 0 ? "+" : ""}${fmt(p.cents, 1)})`).join(", ");
+  const tm = a.tuning_map;
+  const mapSvg = tm && tm.positions_mm.length > 1
+    ? `<h2>Tuning map</h2><p class="muted">cents each partial moves for 0.1 mm taken at a place (a ${fmt(tm.tool_width_mm, 0)} mm tool)</p>` +
+      lineChart(Object.entries(tm.cents_per_0_1_mm).map(([name, values]) => ({ name, values })), "position along the bar, mm", "cents / 0.1 mm", tm.positions_mm)
+    : "";
   $("bench-cut").innerHTML = `<p id="next-cut">At ${esc((step.positions_mm || []).join(" and "))} mm, ${fmt(step.depth_mm, 2)} mm deep over ${fmt(step.length_mm, 0)} mm (a ${fmt(step.tool_width_mm, 0)} mm tool).</p>` +
     `<p class="muted">Predicted after it: ${predicted}</p><p class="muted">${esc(a.message)}</p>` +
-    `<button id="bench-cut-done">I made this cut</button>`;
+    `<button id="bench-cut-done">I made this cut</button><div id="bench-map">${mapSvg}</div>`;
   $("bench-cut-done").addEventListener("click", async () => {
     await api("POST", "/api/bench/cut", { bar: $("bench-bar").value, description: `cut at ${(step.positions_mm || []).join(" & ")} mm, ${step.depth_mm} mm deep`, windows_mm: step.windows_mm, depth_mm: step.depth_mm, tool_width_mm: step.tool_width_mm, eased_edge_mm: step.eased_edge_mm });
     await showHistory();
@@ -249,6 +271,12 @@ function showTap(r) {
 async function showHistory() {
   if (!$("bench-bar").value) return;
   const h = await api("GET", `/api/bench/history?bar=${encodeURIComponent($("bench-bar").value)}`);
+  const taps = h.entries.filter((e) => e.kind === "tap" && e.data.advice);
+  if (taps.length > 1) {
+    const names = taps[0].data.advice.partials.map((p) => p.partial);
+    const series = names.map((name, i) => ({ name, values: taps.map((e) => (e.data.advice.partials[i] || {}).now_cents ?? 0) }));
+    $("bench-way").innerHTML = lineChart(series, "tap", "cents from target", taps.map((_, i) => i + 1));
+  } else $("bench-way").innerHTML = "";
   $("bench-history").innerHTML = h.entries.map((e) => {
     const when = new Date(e.at * 1000).toLocaleString();
     if (e.kind === "cut") return `<li>${esc(when)}: ${esc(e.data.description)}</li>`;
