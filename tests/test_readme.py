@@ -50,7 +50,9 @@ def _param(block: str):
 def test_the_readme_has_examples_of_every_file_kind_and_command():
     assert len(SHELL) >= 5 and len(TOML) >= 6
     run = {words[0] for b in SHELL for words in commands(b)}
-    assert set(_COMMAND_MODULES) <= run  # every command has an example
+    # every command has an example; the workbench serves until stopped, so its example is
+    # run by tests/test_workbench_browser.py (a real server and browser) instead
+    assert set(_COMMAND_MODULES) - {"workbench"} <= run
     text = " ".join(TOML)
     for table in ("[bar]", "[tube]", "[string]", "[target]", "[design]", "[[support]]"):
         assert table in text

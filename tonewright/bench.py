@@ -43,12 +43,14 @@ from tonewright.optimizer import (
     Advice,
     AdviceOptions,
     Calibration,
+    Cut,
     CutLimits,
     Goal,
     Step,
     advise,
     calibrate_bar,
 )
+from tonewright.optimizer.cutplan import apply_cut
 from tonewright.partfile import PartFile, load_part
 from tonewright.tuning import resolve
 from tonewright.units import parse_length, parse_position
@@ -78,6 +80,7 @@ __all__ = [
     "mallet_contact_s",
     "material_toml",
     "measure_partials",
+    "min_thickness_of",
     "preview_sound",
 ]
 
@@ -586,6 +589,30 @@ def goals_of(part_file: PartFile, base: Path | None) -> tuple[Goal, ...]:
     return tuple(Goal(p.family, p.order, p.f_hz, p.tolerance_cents) for p in target.partials)
 
 
+DEFAULT_MIN_SHARE = 0.2  # minimum thickness, as a share of the blank, when the file gives none
+
+
+def min_thickness_of(part_file: PartFile, option_mm: float | None = None) -> float:
+    """The thinnest a bar may become (m): ``--min-thickness`` (mm), else the file's
+    ``[design] min_thickness``, else a share of the blank."""
+    t0 = part_file.bar.thickness
+    if option_mm is not None:
+        if not (math.isfinite(option_mm) and 0 < option_mm * 1e-3 < t0):
+            raise InputError(
+                f"--min-thickness {option_mm:g}: give mm above 0 and under the blank thickness "
+                f"{t0 * 1e3:g} mm"
+            )
+        return option_mm * 1e-3
+    table = part_file.design
+    value = table.min_thickness if table.min_thickness is not None else DEFAULT_MIN_SHARE * t0
+    if value >= t0:
+        raise InputError(
+            f"design.min_thickness {value * 1e3:g} mm must be under the blank thickness "
+            f"{t0 * 1e3:g} mm"
+        )
+    return value
+
+
 @dataclass(frozen=True)
 class AdviseRequest:
     """What ``tonewright advise`` was asked: the bar as it is (part file already read), its
@@ -603,6 +630,7 @@ class AdviseRequest:
     one_sided: bool = False
     count: int = 12
     fmin: float = 20.0
+    cuts_done: tuple[Cut, ...] = ()  # cuts made since the file's profile was measured
 
 
 @dataclass(frozen=True, eq=False)
@@ -728,6 +756,13 @@ def advise_bar(request: AdviseRequest) -> AdviceReport:
     measured = measure_partials(r.wav, r.partials, count=r.count, fmin=r.fmin)
     warnings = list(measured.warnings)
     bar: Bar = part_file.to_part(r.base)
+    for done in r.cuts_done:
+        bar = apply_cut(bar, done)
+    if r.cuts_done:
+        warnings.append(
+            f"the bar is taken as the file gives it with {len(r.cuts_done)} recorded cut(s) "
+            "made as advised; if a cut went otherwise, measure with calipers and update the file"
+        )
     thinnest_now = float(np.min(bar.thickness(np.linspace(0.0, bar.length, 2001))))
     if thinnest_now < h_min:
         warnings.append(

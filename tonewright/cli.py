@@ -29,6 +29,7 @@ _COMMAND_MODULES = [
     "listen",
     "calibrate",
     "sound",
+    "workbench",
 ]
 
 for _name in _COMMAND_MODULES:

@@ -10,7 +10,6 @@ The workflow is ``tonewright.bench.advise_bar``; the numerics are in
 from __future__ import annotations
 
 import json
-import math
 from pathlib import Path
 from typing import Annotated, Any
 
@@ -20,35 +19,15 @@ from rich import box
 from rich.console import Console
 from rich.table import Table
 
-from tonewright.bench import AdviseRequest, advise_bar
+from tonewright.bench import AdviseRequest, advise_bar, min_thickness_of
 from tonewright.cli_support import atomic_write_bytes, check_a4, guarded
 from tonewright.errors import InputError
 from tonewright.optimizer import Advice
-from tonewright.partfile import PartFile, load_part
+from tonewright.partfile import load_part
 
 __all__ = ["map_figure", "register"]
 
-DEFAULT_MIN_SHARE = 0.2  # minimum thickness, as a share of the blank, when the file gives none
 PALETTE = ("#1b6f8a", "#c0392b", "#7b4fa0", "#5a8f29", "#b5651d", "#444444")
-
-
-def _min_thickness(part_file: PartFile, option_mm: float | None) -> float:
-    t0 = part_file.bar.thickness
-    if option_mm is not None:
-        if not (math.isfinite(option_mm) and 0 < option_mm * 1e-3 < t0):
-            raise InputError(
-                f"--min-thickness {option_mm:g}: give mm above 0 and under the blank thickness "
-                f"{t0 * 1e3:g} mm"
-            )
-        return option_mm * 1e-3
-    table = part_file.design
-    value = table.min_thickness if table.min_thickness is not None else DEFAULT_MIN_SHARE * t0
-    if value >= t0:
-        raise InputError(
-            f"design.min_thickness {value * 1e3:g} mm must be under the blank thickness "
-            f"{t0 * 1e3:g} mm"
-        )
-    return value
 
 
 def _where(step: dict[str, Any], length_mm: float) -> str:
@@ -242,7 +221,7 @@ def register(app: typer.Typer) -> None:
             part_file=part_file,
             base=base,
             title=part_file.title or file.stem,
-            min_thickness_m=_min_thickness(part_file, min_thickness),
+            min_thickness_m=min_thickness_of(part_file, min_thickness),
             wav=wav,
             partials=partials,
             step_depth_mm=step_depth,
