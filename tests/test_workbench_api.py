@@ -11,6 +11,7 @@ import numpy as np
 import pytest
 import soundfile as sf
 from fastapi.testclient import TestClient
+from test_input_errors import INSTRUMENT  # the three-bar glockenspiel stub
 from tonewright.acoustics.synth import modal_strike
 from typer.testing import CliRunner
 
@@ -34,23 +35,6 @@ fundamental = "E5"
 ratios = [1, 4]
 [design]
 budget = 120
-"""
-
-INSTRUMENT = """\
-title = "Workshop glockenspiel stub"
-lowest = "C5"
-highest = "D5"
-material = "honduras-rosewood"
-[[profile]]
-from = "C5"
-to = "D5"
-profile = "fundamental"
-[scaling]
-note = "C5"
-length = 190
-width = 30
-thickness = 11
-length_halves_every = 24
 """
 
 
