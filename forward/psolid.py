@@ -590,11 +590,15 @@ def psolid_convergence(
     count: int = 12,
     mesh: PMesh | None = None,
     element_ends: np.ndarray | None = None,
+    fmax_hz: float | None = None,
 ) -> PSolidConvergence:
-    """``psolid_modes`` on ``mesh`` and on ``mesh.lowered()``; the change per mode in cents."""
+    """``psolid_modes`` on ``mesh`` and on ``mesh.lowered()``; the change per mode in cents.
+    With ``fmax_hz`` every mode of ``mesh`` up to it (the lower space's up to 5 % above, its
+    modes lying higher)."""
     mesh = mesh or PMesh()
     bar = (length, width, blank_thickness, thickness, material)
-    result = psolid_modes(*bar, count, mesh, element_ends)
-    lower = psolid_modes(*bar, count + 4, mesh.lowered(), element_ends)
+    result = psolid_modes(*bar, count, mesh, element_ends, fmax_hz)
+    top = None if fmax_hz is None else 1.05 * fmax_hz
+    lower = psolid_modes(*bar, count + 4, mesh.lowered(), element_ends, top)
     f_low = match_modes(result.modes, lower.modes)
     return PSolidConvergence(result, lower, cents(f_low, result.f_hz))
