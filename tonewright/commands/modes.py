@@ -52,19 +52,27 @@ def register(app: typer.Typer) -> None:
         count: Annotated[int, typer.Option("--count", "-n", help="Modes of each family.")] = 4,
         a4: Annotated[float, typer.Option("--a4", help="Pitch reference A4 in Hz.")] = 440.0,
         as_json: Annotated[bool, typer.Option("--json", help="Print JSON on stdout.")] = False,
+        model: Annotated[
+            str,
+            typer.Option(
+                help="auto: the 3D model that certifies designs for a bar of constant width "
+                "(the beam otherwise); solid; beam (fast, labelled as such)."
+            ),
+        ] = "auto",
     ) -> None:
         """Compute the partials of a bar, tube or string: frequency, ratio, note and nodes."""
         if not 1 <= count <= 50:
             raise InputError(f"--count {count}: give 1 to 50 modes per family")
         if not 300.0 <= a4 <= 600.0:
             raise InputError(f"--a4 {a4}: give the pitch reference in Hz (e.g. 440 or 442)")
-        result, title = solve_part_file(file, count)
+        result, title = solve_part_file(file, count, model)
         payload = modes_payload(result, a4)
         if as_json:
             typer.echo(json.dumps(payload, indent=2))
             return
         console = Console()
         console.print(_table(payload, title, node_rows=len(payload["modes"])))
+        console.print(f"model: {result.model}" + "".join(f"; {n}" for n in result.notes))
         console.print(
             f"ratio: to the first bending (or string) mode; notes at A4 = {a4:g} Hz; "
             f"{result.message}."
