@@ -55,6 +55,7 @@ def _print(report: SoundReport, out: Path) -> None:
         + f"; listening at {x_l * 1e3:.1f} mm; mallet contact {report.contact_s * 1e3:g} ms"
     )
     console.print(_table(report.played, title))
+    console.print(f"model: {report.model}")
     if report.silent:
         names = ", ".join(f"{m.family} {m.order}" for m in report.silent)
         console.print(f"not excited (strike or listening point at a node): {names}")
@@ -95,6 +96,13 @@ def register(app: typer.Typer) -> None:
         force: Annotated[
             bool, typer.Option("--force", help="Replace an existing --out file.")
         ] = False,
+        model: Annotated[
+            str,
+            typer.Option(
+                help="auto: a bar rings at the certifying 3D model's frequencies; beam: the "
+                "beam model's (fast)."
+            ),
+        ] = "auto",
     ) -> None:
         """Write what a strike on the part would sound like, and list the partials used."""
         if out.exists() and not force:
@@ -109,6 +117,7 @@ def register(app: typer.Typer) -> None:
             duration_s=duration,
             rate=rate,
             loss_factor=loss_factor,
+            model=model,
         )
         report = preview_sound(request)
         write_wav(out, report.sound.samples, report.sound.rate, overwrite=force)
