@@ -119,7 +119,9 @@ def forward_report(name: str, bar: dict, material, kinks: np.ndarray, quick: boo
     err_hex = None
     if not quick:
         hex27, t_hex = _median_time(lambda: solid_modes(**bar, material=material, count=12), 1)
-        err_hex = cents(match_modes(tuple(modes), hex27.modes), match_modes(tuple(modes), ref.modes))
+        err_hex = cents(
+            match_modes(tuple(modes), hex27.modes), match_modes(tuple(modes), ref.modes)
+        )
         print(
             f"  27-node model (standard mesh): {hex27.n_dof} unknowns, {t_hex:.1f} s, "
             f"worst error {np.nanmax(np.abs(err_hex)):.3f} cent; "
@@ -144,9 +146,7 @@ def design_timings() -> None:
         elapsed = time.perf_counter() - start
         u = np.array([v for _, v in report.variables])
         conv = certify_3d(problem, u)
-        f3 = [
-            conv.result.family_hz(g.family)[g.order - 1] for g in problem.evaluator.goals
-        ]
+        f3 = [conv.result.family_hz(g.family)[g.order - 1] for g in problem.evaluator.goals]
         e3 = cents(np.array(f3), np.array([g.f_hz for g in problem.evaluator.goals]))
         rows[label] = elapsed
         claims = "meets" if report.converged else "misses"

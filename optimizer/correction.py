@@ -110,11 +110,14 @@ def corrected_design(
     max_steps: int = 6,
     progress: Callable[[str, int, float], None] | None = None,
     log: EvaluationLog | None = None,
+    search_again: bool = True,
 ) -> CorrectedDesign:
     """Correct a beam-model design ``start`` until ``high_fidelity`` meets the goals.
 
     ``evaluator`` (the real goals) is kept as it is, on the mesh ``start`` was judged on;
-    ``log`` continues the solve count (by default from ``start.solves``)."""
+    ``log`` continues the solve count (by default from ``start.solves``). ``search_again``:
+    when the corrected beam model has no solution next to the design, search it afresh (else
+    stop there: a later stage will)."""
     settings = settings or SearchSettings()
     log = EvaluationLog(solves=start.solves) if log is None else log
     if start.evaluator is not None:
@@ -173,7 +176,9 @@ def corrected_design(
         ]
         current = current.with_goals(shifted)
         u = polish(current, u, settings, progress, log)
-        if not verdict(current, u, log).met:
+        if not verdict(current, u, log).met and not search_again:
+            stuck = True
+        elif not verdict(current, u, log).met:
             # the corrected beam model has no solution next to this design (typically an
             # unwanted mode the high-fidelity model moved into a band): search it afresh from
             # the corrected optimum, beam solves being cheap beside high-fidelity ones

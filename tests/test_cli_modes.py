@@ -202,7 +202,7 @@ def test_a_bar_is_solved_in_3d_by_default_and_says_so(tmp_path):
     }
     payload = _modes_json(_write(tmp_path / "al.toml", raw), "-n", 2, model="auto")
     assert payload["model"] == "3D solid (p-version)"
-    first = [m for m in payload["modes"] if m["family"] == "bending" and m["order"] == 1][0]
+    first = next(m for m in payload["modes"] if m["family"] == "bending" and m["order"] == 1)
     part_file, base = load_part(tmp_path / "al.toml")
     mat = part_file.to_part(base).material
     E, rho = mat.E, mat.rho

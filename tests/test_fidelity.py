@@ -71,7 +71,7 @@ def test_demo_is_certified_in_3d_by_default():
     outcome = run_design(problem)
     assert outcome.fidelity == "solid" and outcome.converged, outcome.message
     assert [s.model for s, _ in outcome.stages] == ["plane", "psolid"]
-    stage, corrected = outcome.stages[-1]
+    _, corrected = outcome.stages[-1]
     tol = np.array([g.tolerance_cents for g in problem.evaluator.goals])
     assert np.all(np.abs(corrected.final.errors_cents) <= tol)
     assert corrected.final.clear is True

@@ -33,6 +33,7 @@ from tonewright.cli_support import parse_partials
 from tonewright.errors import InputError
 from tonewright.forward import Bar, Material, ModalResult, Part, String, constant, solve
 from tonewright.materials import MaterialSpec, MaterialTable, list_materials, load_material
+from tonewright.modes_report import part_modes
 from tonewright.optimizer import (
     Advice,
     AdviceOptions,
@@ -44,7 +45,6 @@ from tonewright.optimizer import (
     calibrate_bar,
 )
 from tonewright.partfile import PartFile, load_part
-from tonewright.modes_report import part_modes
 from tonewright.tuning import resolve
 from tonewright.units import parse_length, parse_position
 
@@ -799,7 +799,9 @@ def _certified_frequencies(part_file, base, modes, beam_label: str):
     if solid.model == beam_label or not solid.model.startswith("3D"):
         return modes, beam_label
     hz = {(m.family, m.order): m.frequency_hz for m in solid.modes}
-    kept = [replace(m, frequency_hz=hz[(m.family, m.order)]) for m in modes if (m.family, m.order) in hz]
+    kept = [
+        replace(m, frequency_hz=hz[(m.family, m.order)]) for m in modes if (m.family, m.order) in hz
+    ]
     top = max(hz.values())
     label = (
         f"{solid.model} frequencies up to {top:.0f} Hz (higher modes left out); "

@@ -275,8 +275,16 @@ def run_design(
     current = result
     for stage in stages_for(fidelity):
         hf = high_fidelity_function(stage, problem.space, bar.thickness, bar.width, material)
+        # a fresh beam search when the corrected model has no solution nearby: in the last
+        # stage only (the 3D stage sees what the 2D one cannot, the unwanted modes)
         corrected = corrected_design(
-            problem.evaluator, current, hf, settings, progress=progress, log=log
+            problem.evaluator,
+            current,
+            hf,
+            settings,
+            progress=progress,
+            log=log,
+            search_again=stage.model != "plane" or fidelity == "plane",
         )
         stages.append((stage, corrected))
         current = corrected.result

@@ -22,6 +22,7 @@ thickness. On the demo bar and the benchmark bars every wanted mode (bending 1-4
 
 from __future__ import annotations
 
+import itertools
 from collections.abc import Sequence
 from dataclasses import dataclass
 from pathlib import Path
@@ -50,8 +51,8 @@ __all__ = [
     "bar_solid_modes",
     "certifier_ends",
     "goal_frequencies",
-    "solid_top_hz",
     "high_fidelity_function",
+    "solid_top_hz",
     "stages_for",
     "top_face_nodes",
     "verify_part",
@@ -106,7 +107,7 @@ def certifier_ends(length: float, kinks: np.ndarray) -> np.ndarray:
     pts = pts[(pts >= 0.0) & (pts <= length)]
     longest = MAX_ELEMENT_SHARE * length
     out = [pts[:1]]
-    for a, b in zip(pts[:-1], pts[1:], strict=True):
+    for a, b in itertools.pairwise(pts):
         n = int(np.ceil((b - a) / longest - 1e-9))
         out.append(np.linspace(a, b, n + 1)[1:])
     return np.concatenate(out)
@@ -270,12 +271,14 @@ def verify_part(
             if np.isfinite(e)
         }
         mesh_info = {
-            "name": "p-version (%d, %d, %d)" % (PART_MESH.px, PART_MESH.py, PART_MESH.pz),
+            "name": f"p-version ({PART_MESH.px}, {PART_MESH.py}, {PART_MESH.pz})",
             "dofs": int(res.n_dof),
             "status": res.message,
             "max_error_cents": round(conv.max_error_cents, 4) if errors else None,
         }
-        label = "3D orthotropic solid, p-version hexahedra (nested error estimate); beam: Timoshenko"
+        label = (
+            "3D orthotropic solid, p-version hexahedra (nested error estimate); beam: Timoshenko"
+        )
     else:
         try:
             res = solid_modes(

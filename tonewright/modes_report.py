@@ -77,7 +77,9 @@ def _solid_modes(part_file: PartFile, base: Path | None, part: Bar, count: int) 
             continue
         nodes = top_face_nodes(res.coords, res.shapes[k]) if m.family == "bending" else []
         modes.append(
-            SolidMode(m.family, m.order, float(m.f_hz), abs(float(conv.error_cents[k])), tuple(nodes))
+            SolidMode(
+                m.family, m.order, float(m.f_hz), abs(float(conv.error_cents[k])), tuple(nodes)
+            )
         )
     errors = [m.error_cents for m in modes if np.isfinite(m.error_cents)]
     worst = max(errors) if errors else float("nan")
@@ -89,7 +91,9 @@ def _solid_modes(part_file: PartFile, base: Path | None, part: Bar, count: int) 
     return PartModes(tuple(modes), ok, worst, message, MODEL_LABELS["psolid"], tuple(notes))
 
 
-def part_modes(part_file: PartFile, base: Path | None, count: int, model: str = "auto") -> PartModes:
+def part_modes(
+    part_file: PartFile, base: Path | None, count: int, model: str = "auto"
+) -> PartModes:
     """Modes of a validated part file. ``model``: ``auto`` (the certifying 3D model for a bar
     of constant width, else the beam), ``solid`` (3D, bars only) or ``beam``."""
     if model not in MODELS:

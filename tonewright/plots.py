@@ -93,8 +93,14 @@ def spectrum_figure(
     fig, ax = plt.subplots(figsize=(9, 3.2))
     for i, (_family, _order, f) in enumerate(second):
         ax.vlines(f, 0, 0.35, color="#888888", linestyle="--", linewidth=1.0)
-        ax.plot([f], [0.35], marker="x", color="#888888", markersize=4,
-                label=(second_label or "second model") if i == 0 else None)
+        ax.plot(
+            [f],
+            [0.35],
+            marker="x",
+            color="#888888",
+            markersize=4,
+            label=(second_label or "second model") if i == 0 else None,
+        )
     seen = set()
     for family, order, f in modes:
         color = FAMILY_STYLE.get(family, "#555555")
