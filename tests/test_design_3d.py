@@ -43,11 +43,13 @@ BARS = {
         "target": {"fundamental": "F4", "profile": "vibraphone-1-4"},
         "design": {**SPLINE, "end_keep": 15},
     },
-    # a narrow rosewood bar: its second torsion mode lies near the third partial
+    # a narrow rosewood bar: the beam model puts a torsion mode in a partial's band and its
+    # own search misses; the 3D model sees the mode elsewhere and the 3D stage, run anyway,
+    # meets the target (at 40 mm lateral 1 sits on bending 2 in any model: too narrow)
     "narrow wood": {
         "title": "narrow G3",
         "material": "honduras-rosewood",
-        "bar": {"length": 440, "width": 40, "thickness": 22},
+        "bar": {"length": 440, "width": 46, "thickness": 22},
         "target": {"fundamental": "G3", "profile": "marimba-1-4-10"},
         "design": {**SPLINE, "end_keep": 20},
     },

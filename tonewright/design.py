@@ -50,6 +50,7 @@ from tonewright.fidelity import (
     high_fidelity_function,
     solid_top_hz,
     stages_for,
+    top_face_nodes,
 )
 from tonewright.forward import Bar, String, Tube, solve
 from tonewright.forward.geometry import Part
@@ -508,9 +509,12 @@ def _figures(
     rows: list[dict[str, Any]],
     certified_modes: tuple[tuple[str, int, float], ...] | None = None,
     certified_by: str = "",
+    certified_nodes_mm: tuple[float, ...] | None = None,
 ) -> DesignFigures:
     first = "bending" if modal.family("bending") else "transverse"
     nodes = tuple(x * 1e3 for x in modal.family(first)[0].nodes_m)
+    if certified_nodes_mm is not None and len(certified_nodes_mm) == len(nodes):
+        nodes = certified_nodes_mm  # the certifying model's, on the top face's centre line
     top = 1.35 * max(r["achieved_hz"] for r in rows)
     beam_modes = tuple(
         (m.family, m.order, m.frequency_hz) for m in modal.modes if m.frequency_hz <= top
@@ -615,6 +619,7 @@ def design_report(
         r["beam_hz"] = r["achieved_hz"]
         r["certified_by"] = certifier
     certified_modes = None
+    nodes_3d = None
     by = certifier
     converged_note = f"beam model converged to {modal.max_error_cents:.2g} cent"
     if outcome.stages:
@@ -626,6 +631,10 @@ def design_report(
             res = conv.result
             hi_hz = goal_frequencies(res, problem.evaluator.goals, stage.label, res.f_hz[-1])
             certified_modes = tuple((m.family, m.order, float(m.f_hz)) for m in res.modes)
+            first = next(
+                k for k, m in enumerate(res.modes) if m.family == "bending" and m.order == 1
+            )
+            nodes_3d = tuple(x * 1e3 for x in top_face_nodes(res.coords, res.shapes[first]))
             worst = _wanted_error(conv)
             converged_note = (
                 f"3D model converged to {worst:.2g} cent ({res.n_dof} unknowns; "
@@ -671,5 +680,5 @@ def design_report(
         unwanted=tuple(result.evaluation.unwanted),
         unwanted_model=_unwanted_model(outcome),
         corrections=tuple((stage.label, corrected.steps) for stage, corrected in outcome.stages),
-        figures=_figures(problem, part, modal, rows, certified_modes, by),
+        figures=_figures(problem, part, modal, rows, certified_modes, by, nodes_3d),
     )

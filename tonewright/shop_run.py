@@ -17,6 +17,7 @@ import numpy as np
 
 from tonewright.errors import InputError
 from tonewright.forward import Bar, String, families_of, solve
+from tonewright.modes_report import part_modes
 from tonewright.partfile import PartFile, load_part
 from tonewright.shop import ShopPart, TubeCut, WoundString
 
@@ -92,9 +93,17 @@ def shop_part(
     modal = solve(part, counts, tol_cents=0.01, theory=part_file.model.theory)
     if not isinstance(part, Bar):
         return part, None, modal
+    nodes = modal.family("bending")[0].nodes_m
+    model_note = f"Model: {part_file.model.theory} beam, {modal.message}."
     if partials is None:
-        bending = [m for m in modal.modes if m.family == "bending"][:3]
+        # a part file claims no partials: the certifying model's (3D for a bar of constant
+        # width), as 'modes' and 'design' give them
+        solved = part_modes(part_file, base, 3)
+        bending = [m for m in solved.modes if m.family == "bending"][:3]
         partials = tuple((f"{m.family} {m.order}", None, m.frequency_hz) for m in bending)
+        if solved.model.startswith("3D") and len(bending[0].nodes_m) == len(nodes):
+            nodes = bending[0].nodes_m
+            model_note = f"Model: {solved.model}, {solved.message}."
     bar = part_file.bar
     if bar.width_profile:
         raise InputError("bar.width_profile: shop outputs draw bars of constant width only")
@@ -106,7 +115,6 @@ def shop_part(
         if x[-1] < bar.length:
             x = np.concatenate([x, [bar.length]])
     h = part.thickness(x)
-    nodes = modal.family("bending")[0].nodes_m
     spec = part_file.material_spec(base)
     holes = tuple(
         (
@@ -130,7 +138,7 @@ def shop_part(
         node_tolerance_m=0.5e-3,
         material_name=spec.name if spec else "",
         partials=tuple(partials),
-        notes=(f"Model: {part_file.model.theory} beam, {modal.message}.",),
+        notes=(model_note,),
     )
     return part, shop, modal
 
