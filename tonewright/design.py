@@ -637,8 +637,9 @@ def design_report(
             nodes_3d = tuple(x * 1e3 for x in top_face_nodes(res.coords, res.shapes[first]))
             worst = _wanted_error(conv)
             converged_note = (
-                f"3D model converged to {worst:.2g} cent ({res.n_dof} unknowns; "
-                f"nested estimate); beam model to {modal.max_error_cents:.2g} cent"
+                f"3D model {res.n_dof} unknowns, error under {worst:.2g} cent (nested "
+                f"estimate: the change from one degree lower); beam model converged to "
+                f"{modal.max_error_cents:.2g} cent"
             )
         elif corrected.final.modes:
             certified_modes = corrected.final.modes
