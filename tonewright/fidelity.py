@@ -50,6 +50,7 @@ __all__ = [
     "Stage",
     "bar_solid_modes",
     "certifier_ends",
+    "part_element_ends",
     "goal_frequencies",
     "high_fidelity_function",
     "solid_top_hz",
@@ -61,8 +62,9 @@ __all__ = [
 FIDELITIES = ("beam", "plane", "solid")
 # the design loop's 3D model: elements between the cut's kinks (certifier_ends)
 CERTIFY_MESH = PMesh(nx=1, px=5, py=6, pz=5)
-# a part file's profile is stations (no kinks known): a dozen equal elements, one degree more
-PART_MESH = PMesh(nx=12, px=6, py=6, pz=5)
+# a part file's profile is stations (no kinks known): elements from the cut's edges
+# (part_element_ends), one degree more along x
+PART_MESH = PMesh(nx=1, px=6, py=6, pz=5)
 MAX_ELEMENT_SHARE = 1.0 / 8.0  # of the bar's length
 COARSE_SOLID = SolidMesh(nx=48, ny=3, nz=6)
 MODEL_LABELS = {
@@ -98,19 +100,43 @@ def check_bar(part: Bar) -> None:
         raise InputError("bar.width_profile: the 2D/3D models need a constant width")
 
 
-def certifier_ends(length: float, kinks: np.ndarray) -> np.ndarray:
+def certifier_ends(
+    length: float, kinks: np.ndarray, longest_share: float = MAX_ELEMENT_SHARE
+) -> np.ndarray:
     """Element ends for the 3D certifier: the kinks, with every gap longer than
-    ``MAX_ELEMENT_SHARE`` of the length split evenly (the p-version converges exponentially
+    ``longest_share`` of the length split evenly (the p-version converges exponentially
     only where the profile is smooth inside elements, and an element much longer than the
     bar's thickness changes needs a high degree along x)."""
     pts = np.unique(np.concatenate([[0.0, length], np.asarray(kinks, dtype=float)]))
     pts = pts[(pts >= 0.0) & (pts <= length)]
-    longest = MAX_ELEMENT_SHARE * length
+    longest = longest_share * length
     out = [pts[:1]]
     for a, b in itertools.pairwise(pts):
         n = int(np.ceil((b - a) / longest - 1e-9))
         out.append(np.linspace(a, b, n + 1)[1:])
     return np.concatenate(out)
+
+
+def part_element_ends(part: Bar, blank_thickness: float) -> np.ndarray:
+    """Element ends for a bar whose profile is given as stations (a part file): the cut's
+    two edges (the last stations at full thickness, where the curvature of the profile
+    jumps), then gaps split to a twelfth of the length. With twelve equal elements that miss
+    the edges, a designed xylophone bar read 3.8 cents sharp; with these, 0.2 cent
+    (``tests/test_design_3d.py`` checks the written part against its design)."""
+    x = np.asarray(part.thickness.breakpoints, dtype=float)
+    x = x[(x > 0.0) & (x < part.length)]
+    edges = np.zeros(0)
+    if x.size:
+        cut = np.flatnonzero(part.thickness(x) < blank_thickness * (1.0 - 1e-9))
+        if cut.size:
+            first, last = cut[0], cut[-1]
+            edges = np.array(
+                [
+                    x[first - 1] if first > 0 else 0.0,
+                    x[last + 1] if last + 1 < x.size else part.length,
+                ]
+            )
+    return certifier_ends(part.length, edges, 1.0 / 12.0)
 
 
 def goal_frequencies(res: ModeSet, goals: Sequence[Goal], label: str, top: float) -> np.ndarray:
@@ -206,7 +232,10 @@ def bar_solid_modes(
     element_ends: np.ndarray | None = None,
 ):
     """The p-version 3D modes of a bar up to ``fmax_hz`` with the nested error estimate (the
-    same model one degree lower): a ``PSolidConvergence``."""
+    same model one degree lower): a ``PSolidConvergence``. Without ``element_ends`` the
+    profile is taken as stations (``part_element_ends``)."""
+    if element_ends is None:
+        element_ends = part_element_ends(part, blank_thickness)
     try:
         return psolid_convergence(
             part.length,
