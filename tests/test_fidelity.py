@@ -204,3 +204,32 @@ def test_a_certifier_still_off_after_its_checks_is_a_miss_with_its_own_status():
     assert out.result.status == MISSED_CERTIFIER and not out.converged
     assert "still" in out.message and "cents off" in out.message
     assert MISSED_CERTIFIER in STATUS_MESSAGES
+
+
+@pytest.mark.slow
+def test_the_certifier_mesh_is_within_a_tenth_of_a_cent_on_a_smooth_arch():
+    # the design loop's 3D mesh (degrees 5, 6, 5 on the cut's kinks) against the same model
+    # at degrees (10, 8, 7): every wanted mode (bending 1-4, torsion 1-3, lateral 1-2) within
+    # 0.1 cent; the reference itself is checked in tests/test_psolid.py (scikit-fem, the
+    # 27-node model's Richardson limit, closed forms, exponential convergence)
+    from tonewright.acoustics.pitch import cents
+    from tonewright.forward.geometry import PiecewiseLinear
+    from tonewright.forward.orthotropic import Orthotropic
+    from tonewright.forward.psolid import PMesh, psolid_modes
+    from tonewright.forward.solid import match_modes
+
+    from tonewright.fidelity import CERTIFY_MESH, certifier_ends
+
+    wood = Orthotropic(20e9, 2.2e9, 1.2e9, 1.6e9, 1.5e9, 0.4e9, 0.37, 0.45, 0.6, 1000.0)
+    x = np.linspace(0.0, 0.4, 401)
+    inside = (x > 0.06) & (x < 0.34)
+    h = 0.022 - 0.014 * np.where(inside, np.sin(np.pi * (x - 0.06) / 0.28) ** 2, 0.0)
+    bar = (0.4, 0.06, 0.022, PiecewiseLinear(x, h), wood)
+    ends = certifier_ends(0.4, np.array([0.06, 0.34]))
+    ref = psolid_modes(*bar, count=10, mesh=PMesh(nx=1, px=10, py=8, pz=7), element_ends=ends)
+    fast = psolid_modes(*bar, count=8, mesh=CERTIFY_MESH, element_ends=ends, fmax_hz=4000.0)
+    wanted = {"bending": 4, "torsion": 3, "lateral": 2}
+    modes = tuple(m for m in fast.modes if m.order <= wanted.get(m.family, 0))
+    assert len(modes) == 9
+    err = cents(np.array([m.f_hz for m in modes]), match_modes(modes, ref.modes))
+    assert np.all(np.abs(err) < 0.1), err
