@@ -40,8 +40,13 @@ import numpy as np
 from tonewright.acoustics.pitch import cents, cents_to_ratio
 from tonewright.optimizer.objective import EvaluationLog, Evaluator, Goal
 from tonewright.optimizer.search import (
+    MISSED_CERTIFIER,
+    MISSED_LIMIT,
+    MISSED_SHAPE,
+    STATUS_MESSAGES,
     DesignResult,
     SearchSettings,
+    Verdict,
     certified_status,
     design,
     polish,
@@ -197,8 +202,9 @@ def corrected_design(
         else ""
     )
     last = steps[chosen]
+    beam_verdict = verdict(current, u, log)
     judged = certified_status(
-        verdict(current, u, log),
+        beam_verdict,
         last.errors_cents,
         tol,
         last.clear,
@@ -206,6 +212,14 @@ def corrected_design(
         [g.label for g in goals],
         detail,
     )
+    if judged.status == MISSED_CERTIFIER and beam_verdict.status in (MISSED_LIMIT, MISSED_SHAPE):
+        # the corrected beam model cannot get there within the limits either: the miss is
+        # the blank's, so say which limit binds, with the certifying model's numbers
+        judged = Verdict(
+            beam_verdict.status,
+            f"{STATUS_MESSAGES[beam_verdict.status]}: {judged.message}",
+            beam_verdict.binding,
+        )
     result = replace(
         start,
         u=u,
