@@ -32,8 +32,10 @@ Discretisation
   breakpoint of h(x), so piecewise-linear profiles are integrated exactly.
 - Stiffness: with C4[a, i, b, j] = C[voigt(a, i), voigt(b, j)] (engineering shear strains),
   K_ab = sum_ij C4[a, i, b, j] S_ij, S_ij = int d_i N_A d_j N_B dV.
-- Eigen-solution: unknowns ordered x-layer by x-layer, so K - sigma M is banded; a banded
-  Cholesky factor (LAPACK ``dpbtrf`` via ``scipy.linalg.cholesky_banded``) drives ARPACK's
+- Eigen-solution: unknowns ordered x-layer by x-layer; K - sigma M is factored by condensing
+  each x-element's interior functions (dense Cholesky per element) onto the vertex layers,
+  whose block-tridiagonal Schur complement gets a block Cholesky factor
+  (``_CondensedCholesky``, ``_BlockTridiagonalCholesky``). That solve drives ARPACK's
   shift-invert Lanczos (``scipy.sparse.linalg.eigsh``) with a small negative shift, as in
   ``forward.solid``; three rigid-body modes per symmetry class are dropped.
 
