@@ -42,7 +42,7 @@ from tonewright.partfile import parse_part  # noqa: E402
 from tonewright.scheduling import neighbour_parents, run_in_parent_order  # noqa: E402
 
 EXAMPLE = _HERE.parent / "examples" / "workshop-marimba-three-partials.toml"
-TARGET_S = {"beam": 30.0, "plane": 600.0}
+TARGET_S = {"beam": 30.0, "plane": 600.0, "solid": 600.0}
 
 
 def _init() -> None:
@@ -84,7 +84,7 @@ def main() -> None:
         "--profile", default="file", help="a profile forced on every bar; 'file' keeps the file's"
     )
     parser.add_argument("--file", type=Path, default=EXAMPLE)
-    parser.add_argument("--fidelity", choices=("beam", "plane"), default="beam")
+    parser.add_argument("--fidelity", choices=("beam", "plane", "solid"), default="beam")
     args = parser.parse_args()
 
     spec, base = load_instrument(args.file)

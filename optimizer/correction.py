@@ -14,7 +14,9 @@ correction approach", Computing Suppl. 5, 1-32):
 
 repeated until the high-fidelity frequencies meet the original goals within tolerance. The
 defect varies slowly with the design, so a few iterations suffice; each costs one
-high-fidelity solve.
+high-fidelity solve. The update is relaxed when it overshoots: a check that comes out worse
+than the best so far sends the loop back to the best design with half the step (the shift
+s <- s + gain (-d - s), gain 1, 1/2, 1/4), and the design returned is the best one checked.
 
 A high-fidelity model that also returns the clearance families' modes (``HighFidelityModes``,
 the 3D model) corrects those the same way: each beam mode is scaled by its high-fidelity
@@ -38,8 +40,13 @@ import numpy as np
 from tonewright.acoustics.pitch import cents, cents_to_ratio
 from tonewright.optimizer.objective import EvaluationLog, Evaluator, Goal
 from tonewright.optimizer.search import (
+    MISSED_CERTIFIER,
+    MISSED_LIMIT,
+    MISSED_SHAPE,
+    STATUS_MESSAGES,
     DesignResult,
     SearchSettings,
+    Verdict,
     certified_status,
     design,
     polish,
@@ -60,6 +67,7 @@ class HighFidelityModes:
 
     goals_hz: np.ndarray
     families: dict[str, np.ndarray]
+    modes: tuple[tuple[str, int, float], ...] = ()  # every mode found: (family, order, Hz)
 
 
 @dataclass(frozen=True)
@@ -69,6 +77,7 @@ class CorrectionStep:
     errors_cents: np.ndarray  # high-fidelity against the original goals
     defect_cents: np.ndarray
     clear: bool | None = None  # unwanted modes clear in the high-fidelity model (None: unseen)
+    modes: tuple[tuple[str, int, float], ...] = ()  # the high-fidelity model's modes, if given
 
 
 @dataclass(frozen=True, eq=False)
@@ -78,6 +87,12 @@ class CorrectedDesign:
 
     result: DesignResult
     steps: tuple[CorrectionStep, ...]
+    chosen: int = -1  # the step the result stands on: the best check, not always the last
+
+    @property
+    def final(self) -> CorrectionStep:
+        """The high-fidelity check of the returned design."""
+        return self.steps[self.chosen]
 
     @property
     def converged(self) -> bool:
@@ -100,11 +115,14 @@ def corrected_design(
     max_steps: int = 6,
     progress: Callable[[str, int, float], None] | None = None,
     log: EvaluationLog | None = None,
+    search_again: bool = True,
 ) -> CorrectedDesign:
     """Correct a beam-model design ``start`` until ``high_fidelity`` meets the goals.
 
     ``evaluator`` (the real goals) is kept as it is, on the mesh ``start`` was judged on;
-    ``log`` continues the solve count (by default from ``start.solves``)."""
+    ``log`` continues the solve count (by default from ``start.solves``). ``search_again``:
+    when the corrected beam model has no solution next to the design, search it afresh (else
+    stop there: a later stage will)."""
     settings = settings or SearchSettings()
     log = EvaluationLog(solves=start.solves) if log is None else log
     if start.evaluator is not None:
@@ -115,14 +133,19 @@ def corrected_design(
     u = start.u
     steps: list[CorrectionStep] = []
     current = evaluator  # the beam model with shifted goals and scaled unwanted modes
+    shift = np.zeros(len(goals))  # cents: the beam goals are the real ones moved by this
+    gain = 1.0  # relaxation of the update; halved each time a check comes out worse
+    best: tuple[float, int, np.ndarray, Evaluator, np.ndarray] | None = None
     stuck = False
     for i in range(max_steps):
         beam_ev = current.evaluate(u, log=log)
         beam = beam_ev.achieved_hz
         seen = high_fidelity(u, goals)
         clear = None
+        modes: tuple[tuple[str, int, float], ...] = ()
         if isinstance(seen, HighFidelityModes):
             hi = np.asarray(seen.goals_hz, dtype=float)
+            modes = tuple(seen.modes)
             if current.clearance is not None:
                 # judge the clearance on the high-fidelity modes: scale each beam mode by the
                 # ratio the high-fidelity model shows at this design
@@ -134,27 +157,42 @@ def corrected_design(
             hi = np.asarray(seen, dtype=float)
         errors = cents(hi, target)
         defect = cents(hi, beam)
-        steps.append(CorrectionStep(beam, hi, errors, defect, clear))
+        steps.append(CorrectionStep(beam, hi, errors, defect, clear, modes))
         if progress:
             progress("correct", log.solves, float(np.max(np.abs(errors))))
-        if (np.all(np.abs(errors) <= tol) and clear is not False) or i == max_steps - 1:
-            break
-        if stuck:  # the corrected beam model had no solution: more checks cannot help
-            break
+        met = bool(np.all(np.abs(errors) <= tol) and clear is not False)
+        # a design with an unwanted mode in a band ranks below any that is clear
+        score = float(np.max(np.abs(errors) / tol)) + (0.0 if clear is not False else 1e3)
+        if best is None or score < best[0]:
+            best = (score, i, u, current, shift)
+        else:
+            # the update overshot (the defect moved more than the design did): back to the
+            # best design so far, with a smaller step (a relaxed fixed-point iteration)
+            gain *= 0.5
+            _, j, u, current, shift = best
+            defect = steps[j].defect_cents
+        if met or i == max_steps - 1 or stuck or gain < 0.2:
+            break  # stuck: the corrected beam model had no solution, more checks cannot help
+        # relaxed defect correction: at gain 1 the beam goals are moved by minus the defect
+        shift = shift + gain * (-defect - shift)
         shifted = [
-            replace(g, f_hz=g.f_hz * float(cents_to_ratio(-d)))
-            for g, d in zip(goals, defect, strict=True)
+            replace(g, f_hz=g.f_hz * float(cents_to_ratio(s)))
+            for g, s in zip(goals, shift, strict=True)
         ]
         current = current.with_goals(shifted)
         u = polish(current, u, settings, progress, log)
-        if not verdict(current, u, log).met:
+        if not verdict(current, u, log).met and not search_again:
+            stuck = True
+        elif not verdict(current, u, log).met:
             # the corrected beam model has no solution next to this design (typically an
-            # unwanted mode the high-fidelity model moved into a band): search it afresh,
-            # beam solves being cheap beside high-fidelity ones
+            # unwanted mode the high-fidelity model moved into a band): search it afresh from
+            # the corrected optimum, beam solves being cheap beside high-fidelity ones
             fresh = replace(settings, budget=log.solves + settings.budget)
             again = design(current, fresh, progress, start=u, log=log)
             u, stuck = again.u, not again.converged
             current = again.evaluator or current
+    assert best is not None
+    _, chosen, u, current, _ = best
     evaluation = current.evaluate(u, log=log)
     bad = [m for m in evaluation.unwanted if not m.clear]
     detail = (
@@ -163,9 +201,10 @@ def corrected_design(
         if bad
         else ""
     )
-    last = steps[-1]
+    last = steps[chosen]
+    beam_verdict = verdict(current, u, log)
     judged = certified_status(
-        verdict(current, u, log),
+        beam_verdict,
         last.errors_cents,
         tol,
         last.clear,
@@ -173,6 +212,14 @@ def corrected_design(
         [g.label for g in goals],
         detail,
     )
+    if judged.status == MISSED_CERTIFIER and beam_verdict.status in (MISSED_LIMIT, MISSED_SHAPE):
+        # the corrected beam model cannot get there within the limits either: the miss is
+        # the blank's, so say which limit binds, with the certifying model's numbers
+        judged = Verdict(
+            beam_verdict.status,
+            f"{STATUS_MESSAGES[beam_verdict.status]}: {judged.message}",
+            beam_verdict.binding,
+        )
     result = replace(
         start,
         u=u,
@@ -183,7 +230,7 @@ def corrected_design(
         solves=log.solves,
         evaluator=_at_degree(evaluator, current.degree),
     )
-    return CorrectedDesign(result=result, steps=tuple(steps))
+    return CorrectedDesign(result=result, steps=tuple(steps), chosen=chosen)
 
 
 def _mode_ratios(high: dict[str, np.ndarray], beam: dict[str, np.ndarray]) -> dict[str, np.ndarray]:

@@ -41,24 +41,31 @@ def test_demo_design_meets_its_target(demo):
     assert np.allclose(targets, 261.6256 * np.array([1, 4, 10]), rtol=1e-6)
     for name in ("part.toml", "profile.png", "profile.svg", "spectrum.png", "spectrum.svg"):
         assert (out / name).stat().st_size > 0
-    # the clearance was judged by the beam model, whose torsion modes are far off on an
-    # undercut bar: the result says so and points to the 3D check
-    assert "beam model" in payload["unwanted_modes_model"]
-    assert "tonewright verify" in payload["unwanted_modes_model"]
-    assert "check them in 3D" in result.output.replace("\n", " ")
+    # certified in 3D by default: the partials, the clearance of the torsion and lateral
+    # modes and the plotted modes are the 3D model's, and the result names it
+    assert all(r["certified_by"].startswith("3D solid (p-version)") for r in payload["partials"])
+    assert payload["unwanted_modes_model"].startswith("3D model")
+    assert payload["modes_model"].startswith("3D solid (p-version)")
+    assert {"torsion", "lateral", "bending"} <= {m["family"] for m in payload["modes"]}
+    assert "3D solid (p-version)" in " ".join(result.output.split())
 
 
 def test_written_part_reproduces_the_result(demo):
     _, out = demo
     payload = json.loads((out / "result.json").read_text())
-    modes = runner.invoke(app, ["modes", str(out / "part.toml"), "--json", "--count", "3"])
-    assert modes.exit_code == 0, modes.output
-    found = {
-        (m["family"], m["order"]): m["frequency_hz"] for m in json.loads(modes.output)["modes"]
-    }
-    for row in payload["partials"]:
-        f = found[(row["family"], row["order"])]
-        assert abs(1200 * np.log2(f / row["beam_hz"])) < 0.01  # same beam model, same file
+    for model, key, within in (("beam", "beam_hz", 0.01), ("auto", "achieved_hz", 0.3)):
+        modes = runner.invoke(
+            app, ["modes", str(out / "part.toml"), "--json", "-n", "3", "--model", model]
+        )
+        assert modes.exit_code == 0, modes.output
+        found = {
+            (m["family"], m["order"]): m["frequency_hz"] for m in json.loads(modes.output)["modes"]
+        }
+        for row in payload["partials"]:
+            f = found[(row["family"], row["order"])]
+            # the beam: same model, same file; 'modes' by default: the certifying 3D model on
+            # the written stations with its own mesh, so the design's pitch is what it reads
+            assert abs(1200 * np.log2(f / row[key])) < within, (model, row)
     # the cut in the design's own terms, plus a station table to read it by
     cut = payload["part"]["bar"]["undercut"]
     assert cut["shape"] == "spline" and len(cut["depths"]) == 5
@@ -71,7 +78,7 @@ def test_written_part_file_is_compact_and_exact(demo):
     text = (out / "part.toml").read_text()
     assert len(text.splitlines()) < 60  # it was 5,974 lines, one number a line
     assert "profile = [" not in text
-    assert "certified by the 2D plane-stress side-profile model" in text
+    assert "certified by the 3D solid (p-version)" in text
     # the summary says where the cut starts, not only where it may
     payload = json.loads((out / "result.json").read_text())
     summary = payload["design"]["summary"]

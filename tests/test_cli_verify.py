@@ -1,8 +1,8 @@
 """`tonewright verify`: the 3D check of a bar from a part file or a design result.
 
-The 3D model's own evidence (closed forms, scikit-fem cross-check, convergence) is in
-tests/test_solid.py; here: the command's output, its comparison with the beam model, and
-its error paths.
+The 3D models' own evidence (closed forms, scikit-fem cross-check, convergence) is in
+tests/test_solid.py and tests/test_psolid.py; here: the command's output, its comparison
+with the beam model, and its error paths.
 """
 
 from __future__ import annotations
@@ -40,6 +40,27 @@ def test_bad_mesh_option(tmp_path):
     )
     result = runner.invoke(app, ["verify", str(path), "--mesh", "huge"])
     assert result.exit_code == 2
+    result = runner.invoke(app, ["verify", str(path), "--model", "fem"])
+    assert result.exit_code == 2 and "psolid or hex27" in result.output
+
+
+def test_the_default_is_the_certifying_model_with_an_error_estimate(tmp_path):
+    # the p-version model that certifies designs, each mode with its nested error estimate
+    # (the change from one degree lower, an upper bound: tests/test_psolid.py); on this
+    # uniform maple blank under 0.1 cent for bending 1-3, under 0.5 cent for every mode
+    path = _write(
+        tmp_path, 'material = "sugar-maple"\n[bar]\nlength = 400\nwidth = 50\nthickness = 22\n'
+    )
+    result = runner.invoke(app, ["verify", str(path), "--json"])
+    assert result.exit_code == 0, result.output
+    payload = json.loads(result.output)
+    assert "p-version" in payload["model"]
+    wanted = [m for m in payload["modes"] if m["family"] in ("bending", "torsion", "lateral")]
+    assert len(wanted) >= 7
+    bending = [m for m in wanted if m["family"] == "bending" and m["order"] <= 3]
+    assert len(bending) == 3 and all(m["error_cents"] < 0.1 for m in bending)
+    assert all(m["error_cents"] is not None and m["error_cents"] < 0.5 for m in wanted)
+    assert payload["mesh"]["max_error_cents"] < 0.5
 
 
 @pytest.mark.slow
@@ -49,7 +70,9 @@ def test_uniform_bar_3d_against_beam(tmp_path):
     path = _write(
         tmp_path, 'material = "sugar-maple"\n[bar]\nlength = 400\nwidth = 50\nthickness = 22\n'
     )
-    result = runner.invoke(app, ["verify", str(path), "--json", "--mesh", "coarse"])
+    result = runner.invoke(
+        app, ["verify", str(path), "--json", "--model", "hex27", "--mesh", "coarse"]
+    )
     assert result.exit_code == 0, result.output
     payload = json.loads(result.output)
     modes = {(m["family"], m["order"]): m for m in payload["modes"]}

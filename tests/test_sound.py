@@ -35,8 +35,9 @@ runner = CliRunner()
 F4 = "examples/workshop-f4-bar.toml"
 
 
-def sound(*args):
-    return runner.invoke(app, ["sound", *map(str, args)])
+def sound(*args, model="beam"):
+    # the beam route unless asked: most tests here check the preview against the beam solve
+    return runner.invoke(app, ["sound", *map(str, args), "--model", model])
 
 
 def cents_between(a, b):
@@ -258,3 +259,22 @@ def test_input_errors(tmp_path, args, needle):
     assert len(lines) == 1 and lines[0].startswith("error: ")
     assert needle in lines[0]
     assert not (tmp_path / "x.wav").exists()
+
+
+@pytest.mark.slow
+def test_a_bar_rings_at_the_certifying_3d_frequencies_by_default(tmp_path):
+    # the default: a bar of constant width plays the 3D model's partials (the model that
+    # certifies designs), the output names it, and the first partial is the one 'modes' gives
+    out = tmp_path / "s.wav"
+    result = sound(F4, "--out", out, "--duration", 0.5, model="auto")
+    assert result.exit_code == 0, result.output
+    assert "model: 3D solid (p-version)" in " ".join(result.stdout.split())
+    rows = runner.invoke(app_modes(), ["modes", F4, "--json", "-n", "1"])
+    first = json.loads(rows.stdout)["modes"][0]["frequency_hz"]
+    assert f"{first:.2f}" in result.stdout
+
+
+def app_modes():
+    from tonewright.cli import app as full
+
+    return full

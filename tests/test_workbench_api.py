@@ -171,18 +171,18 @@ def test_other_computers_are_refused(shop):
 
 
 def test_modes_with_shapes_match_the_cli(client, shop):
-    data = client.get("/api/modes", params={"name": "half.toml", "count": 3}).json()
-    result = CliRunner().invoke(cli_app, ["modes", str(shop / "half.toml"), "--json"])
+    data = client.get("/api/modes", params={"name": "e5.toml", "count": 3}).json()
+    result = CliRunner().invoke(cli_app, ["modes", str(shop / "e5.toml"), "--json", "-n", "3"])
     assert result.exit_code == 0, result.output
     cli = json.loads(result.stdout)
+    assert data["model"] == cli["model"] and data["model"].startswith("3D")  # named, the same
     ours = {(m["family"], m["order"]): m["frequency_hz"] for m in data["modes"]}
-    for m in cli["modes"]:
-        if (m["family"], m["order"]) in ours:
-            assert ours[m["family"], m["order"]] == pytest.approx(m["frequency_hz"], rel=1e-9)
-    shape = data["modes"][0]["shape"]
+    assert ours == {(m["family"], m["order"]): m["frequency_hz"] for m in cli["modes"]}
+    bending = next(m for m in data["modes"] if (m["family"], m["order"]) == ("bending", 1))
+    shape = bending["shape"]
     assert len(shape["x_mm"]) == len(shape["y"]) == 121
-    assert shape["x_mm"][-1] == pytest.approx(366) and max(map(abs, shape["y"])) == 1.0
-    assert client.get("/api/modes", params={"name": "half.toml", "count": 0}).status_code == 422
+    assert shape["x_mm"][-1] == pytest.approx(200) and max(map(abs, shape["y"])) == 1.0
+    assert client.get("/api/modes", params={"name": "e5.toml", "count": 0}).status_code == 422
 
 
 def _follow(client: TestClient, job: int) -> list[dict]:

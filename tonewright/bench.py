@@ -39,6 +39,7 @@ from tonewright.cli_support import parse_partials
 from tonewright.errors import InputError
 from tonewright.forward import Bar, Material, ModalResult, Part, String, Tube, constant, solve
 from tonewright.materials import MaterialSpec, MaterialTable, list_materials, load_material
+from tonewright.modes_report import part_modes
 from tonewright.optimizer import (
     Advice,
     AdviceOptions,
@@ -828,6 +829,7 @@ class SoundRequest:
     duration_s: float = 3.0
     rate: int = 44100
     loss_factor: float | None = None
+    model: str = "auto"  # auto: the certifying 3D model for a bar of constant width; beam
 
 
 @dataclass(frozen=True, eq=False)
@@ -842,6 +844,7 @@ class SoundReport:
     duration_s: float
     sound: StrikeSound
     modal: ModalResult
+    model: str = "beam model"  # what set the frequencies played
 
     @property
     def played(self) -> tuple[tuple[PreviewMode, float], ...]:
@@ -916,6 +919,32 @@ def preview_sound(request: SoundRequest) -> SoundReport:
         part, counts, tol_cents=part_file.model.tolerance_cents, theory=part_file.model.theory
     )
     modes = preview_modes(part, result, (x_s, y_s), (x_l, y_l), eta)
+    model = f"beam model ({part_file.model.theory})"
+    if r.model not in ("auto", "beam"):
+        raise InputError(f"--model {r.model!r}: choose auto or beam")
+    if r.model == "auto" and isinstance(part, Bar):
+        modes, model = _certified_frequencies(part_file, base, modes, model)
     sound = strike_sound(modes, contact, r.rate, r.duration_s)
     title = part_file.title or r.file.stem
-    return SoundReport(title, part, (x_s, y_s), (x_l, y_l), contact, r.duration_s, sound, result)
+    return SoundReport(
+        title, part, (x_s, y_s), (x_l, y_l), contact, r.duration_s, sound, result, model
+    )
+
+
+def _certified_frequencies(part_file, base, modes, beam_label: str):
+    """The preview's modes at the certifying 3D model's frequencies (same family and order),
+    the strike weights still from the beam's shapes; modes the 3D solve did not reach are
+    left out. A bar the 3D model cannot take (varying width) keeps the beam's."""
+    solid = part_modes(part_file, base, count=4, model="auto")
+    if solid.model == beam_label or not solid.model.startswith("3D"):
+        return modes, beam_label
+    hz = {(m.family, m.order): m.frequency_hz for m in solid.modes}
+    kept = [
+        replace(m, frequency_hz=hz[(m.family, m.order)]) for m in modes if (m.family, m.order) in hz
+    ]
+    top = max(hz.values())
+    label = (
+        f"{solid.model} frequencies up to {top:.0f} Hz (higher modes left out); "
+        "strike weights from the beam's mode shapes"
+    )
+    return tuple(kept), label

@@ -23,7 +23,7 @@ The ``[design]`` table (all optional; lengths in mm unless a unit is written):
     density_range = [0.5e-3, 4e-3]  # strings: linear density bounds, kg/m
     seed = 1
     budget = 2000             # forward solves at most
-    fidelity = "plane"        # bars: beam | plane (default) | solid: the model that certifies
+    fidelity = "solid"        # bars: beam | plane | solid (default, 3D): the certifying model
     thickness_axis = "T"      # wood for the 2D/3D models: T quarter-sawn, R flat-sawn
 
 The workflow: ``build_problem`` validates, ``design_report`` runs the search, the corrections
@@ -42,7 +42,18 @@ import numpy as np
 
 from tonewright.acoustics.pitch import STRIKE_MODES, cents, critical_bandwidth_hz
 from tonewright.errors import InputError
-from tonewright.fidelity import Stage, check_bar, high_fidelity_function, stages_for
+from tonewright.fidelity import (
+    CERTIFY_MESH,
+    Stage,
+    bar_solid_modes,
+    certifier_ends,
+    check_bar,
+    goal_frequencies,
+    high_fidelity_function,
+    solid_top_hz,
+    stages_for,
+    top_face_nodes,
+)
 from tonewright.forward import Bar, String, Tube, solve
 from tonewright.forward.geometry import Part
 from tonewright.optimizer import (
@@ -102,7 +113,6 @@ UNWANTED_3D = "3D model: the beam's modes scaled to the 3D solve of this very de
 Progress = Callable[[str, int, float], None]
 
 # what the sheets and summaries call the model of each correction stage
-MODEL_NAMES = {"plane": "2D plane-stress side-profile model", "solid": "3D orthotropic solid model"}
 
 
 @dataclass(frozen=True)
@@ -261,7 +271,7 @@ class Outcome:
 def fidelity_of(problem: Problem, override: str | None = None) -> str:
     chosen = override or problem.table.fidelity
     if chosen is None:
-        return "plane" if isinstance(problem.blank, Bar) else "beam"
+        return "solid" if isinstance(problem.blank, Bar) else "beam"
     if chosen != "beam" and not isinstance(problem.blank, Bar):
         raise InputError(f"fidelity {chosen!r}: the 2D/3D models are for bars; use 'beam'")
     return chosen
@@ -284,7 +294,11 @@ def run_design(
     start: np.ndarray | None = None,
 ) -> Outcome:
     """Beam-model design, then the staged corrections of the chosen fidelity. ``start``: the
-    scaled variables of a similar design to polish first (see ``optimizer.design``)."""
+    scaled variables of a similar design to polish first (see ``optimizer.design``).
+
+    The correction runs even when the beam design missed: the beam's miss may be the beam's
+    own error (a torsion mode it puts in a band where the 3D model does not), and the status
+    and binding limit reported are then the certifying model's."""
     settings = SearchSettings(seed=problem.table.seed, budget=problem.table.budget)
     fidelity = fidelity_of(problem, fidelity)
     material = None
@@ -310,19 +324,25 @@ def run_design(
         return Outcome(unreachable(problem.evaluator, binding, detail, log), fidelity, ())
     result = design(problem.evaluator, settings, progress, start, log)
     stages: list[tuple[Stage, CorrectedDesign]] = []
-    if fidelity == "beam" or not result.converged:
+    if fidelity == "beam":
         return Outcome(result, fidelity, ())
     bar = problem.part_file.bar
     current = result
     for stage in stages_for(fidelity):
         hf = high_fidelity_function(stage, problem.space, bar.thickness, bar.width, material)
+        # a fresh beam search when the corrected model has no solution nearby: in the last
+        # stage only (the 3D stage sees what the 2D one cannot, the unwanted modes)
         corrected = corrected_design(
-            problem.evaluator, current, hf, settings, progress=progress, log=log
+            problem.evaluator,
+            current,
+            hf,
+            settings,
+            progress=progress,
+            log=log,
+            search_again=stage.model != "plane" or fidelity == "plane",
         )
         stages.append((stage, corrected))
         current = corrected.result
-        if not corrected.converged and stage.model == "plane" and fidelity == "solid":
-            break
     return Outcome(current, fidelity, tuple(stages))
 
 
@@ -565,6 +585,7 @@ class DesignFigures:
     """What the figures of a design show (mm, Hz), so that they are drawn without a solve."""
 
     modes: tuple[tuple[str, int, float], ...]  # (family, order, Hz) up to 1.35 x the top goal
+    # in the certifying model (``modes_model``)
     targets: tuple[tuple[str, float, float], ...]  # (label, Hz, tolerance in cents)
     x_mm: tuple[float, ...]
     thickness_mm: tuple[float, ...] | None  # bars: the side profile
@@ -573,6 +594,8 @@ class DesignFigures:
     shape: tuple[float, ...] | None  # tubes and strings: the first mode shape
     nodes_mm: tuple[float, ...]
     density_g_m: tuple[float, ...] | None = None  # strings: the designed linear density
+    modes_model: str = "beam model"
+    beam_modes: tuple[tuple[str, int, float], ...] = ()  # the beam's, when it did not certify
 
 
 @dataclass(frozen=True, eq=False)
@@ -619,21 +642,37 @@ class DesignReport:
 
 def _unwanted_model(outcome: Outcome) -> str:
     """Which model judged the clearance of the unwanted modes in this outcome."""
-    if outcome.stages and outcome.stages[-1][0].model == "solid":
-        if outcome.stages[-1][1].steps[-1].clear is not None:
+    if outcome.stages and outcome.stages[-1][0].model in ("solid", "psolid"):
+        if outcome.stages[-1][1].final.clear is not None:
             return UNWANTED_3D
     return UNWANTED_CAVEAT
 
 
-def _figures(problem: Problem, part: Part, modal, rows: list[dict[str, Any]]) -> DesignFigures:
+def _figures(
+    problem: Problem,
+    part: Part,
+    modal,
+    rows: list[dict[str, Any]],
+    certified_modes: tuple[tuple[str, int, float], ...] | None = None,
+    certified_by: str = "",
+    certified_nodes_mm: tuple[float, ...] | None = None,
+) -> DesignFigures:
     first = "bending" if modal.family("bending") else "transverse"
     nodes = tuple(x * 1e3 for x in modal.family(first)[0].nodes_m)
+    if certified_nodes_mm is not None and len(certified_nodes_mm) == len(nodes):
+        nodes = certified_nodes_mm  # the certifying model's, on the top face's centre line
     used = [r["achieved_hz"] for r in rows]
     for k, _ in STRIKE_MODES if any(r["family"] == "strike" for r in rows) else ():
         used.append(modal.frequency("bending", k))  # the strike note's own modes
     top = 1.35 * max(used)
-    modes = tuple((m.family, m.order, m.frequency_hz) for m in modal.modes if m.frequency_hz <= top)
-    modes += tuple(("strike", 1, r["achieved_hz"]) for r in rows if r["family"] == "strike")
+    beam_modes = tuple(
+        (m.family, m.order, m.frequency_hz) for m in modal.modes if m.frequency_hz <= top
+    )
+    beam_modes += tuple(("strike", 1, r["achieved_hz"]) for r in rows if r["family"] == "strike")
+    modes, second, model = beam_modes, (), f"beam model ({problem.part_file.model.theory})"
+    if certified_modes is not None:
+        modes = tuple(m for m in certified_modes if m[2] <= top and m[0] != "other")
+        second, model = beam_modes, certified_by
     targets = tuple(
         (
             f"{r['family']} {r['order']}" if r["family"] != "strike" else "strike",
@@ -670,8 +709,40 @@ def _figures(problem: Problem, part: Part, modal, rows: list[dict[str, Any]]) ->
         holes,
         shape,
         nodes,
-        density,
+        density_g_m=density,
+        modes_model=model,
+        beam_modes=second,
     )
+
+
+def _material_3d(problem: Problem):
+    spec = problem.part_file.material_spec(problem.base_dir)
+    return spec.to_solid(problem.table.thickness_axis)
+
+
+def certify_3d(problem: Problem, u: np.ndarray):
+    """The 3D certifier's solve of the design ``u`` (its own mesh, the cut's kinks as element
+    ends) with the nested error estimate (``forward.psolid.psolid_convergence``)."""
+    part = problem.space.part(u)
+    bar = problem.part_file.bar
+    top = solid_top_hz(problem.evaluator.goals)
+    ends = certifier_ends(part.length, problem.space.kinks(u))
+    return bar_solid_modes(
+        part, bar.width, bar.thickness, _material_3d(problem), top, CERTIFY_MESH, ends
+    )
+
+
+WANTED_3D = {"bending": 4, "torsion": 3, "lateral": 2}
+
+
+def _wanted_error(conv) -> float:
+    """Largest nested error estimate (cents) over the modes a bar's design cares about."""
+    errs = [
+        abs(float(e))
+        for m, e in zip(conv.result.modes, conv.error_cents, strict=True)
+        if m.order <= WANTED_3D.get(m.family, 0) and np.isfinite(e)
+    ]
+    return max(errs) if errs else float("nan")
 
 
 def design_report(
@@ -706,9 +777,32 @@ def design_report(
     for r in rows:
         r["beam_hz"] = r["achieved_hz"]
         r["certified_by"] = certifier
+    certified_modes = None
+    nodes_3d = None
+    by = certifier
+    converged_note = f"beam model converged to {modal.max_error_cents:.2g} cent"
     if outcome.stages:
         stage, corrected = outcome.stages[-1]
-        for r, f in zip(rows, corrected.steps[-1].high_fidelity_hz, strict=True):
+        hi_hz = corrected.final.high_fidelity_hz
+        by = stage.label
+        if stage.model == "psolid":
+            conv = certify_3d(problem, result.u)
+            res = conv.result
+            hi_hz = goal_frequencies(res, problem.evaluator.goals, stage.label, res.f_hz[-1])
+            certified_modes = tuple((m.family, m.order, float(m.f_hz)) for m in res.modes)
+            first = next(
+                k for k, m in enumerate(res.modes) if m.family == "bending" and m.order == 1
+            )
+            nodes_3d = tuple(x * 1e3 for x in top_face_nodes(res.coords, res.shapes[first]))
+            worst = _wanted_error(conv)
+            converged_note = (
+                f"3D model {res.n_dof} unknowns, error under {worst:.2g} cent (nested "
+                f"estimate: the change from one degree lower); beam model converged to "
+                f"{modal.max_error_cents:.2g} cent"
+            )
+        elif corrected.final.modes:
+            certified_modes = corrected.final.modes
+        for r, f in zip(rows, hi_hz, strict=True):
             r["achieved_hz"] = float(f)
             r["error_cents"] = float(cents(f, r["target_hz"]))
             r["certified_by"] = stage.label
@@ -728,7 +822,6 @@ def design_report(
         )
         for r in rows
     )
-    by = MODEL_NAMES.get(outcome.stages[-1][0].model, "") if outcome.stages else certifier
     pf = problem.part_file
     return DesignReport(
         title=pf.title or "",
@@ -739,8 +832,8 @@ def design_report(
         partials=partials,
         part=table,
         certified_by=(
-            f"{by}, corrections on the {solver} (converged to {modal.max_error_cents:.2g} cent)"
-            if by != solver
+            f"{by}; {converged_note}"
+            if outcome.stages
             else f"{solver}, converged to {modal.max_error_cents:.2g} cent"
         ),
         variables=tuple(zip(names, map(float, result.u), strict=True)),
@@ -753,5 +846,5 @@ def design_report(
         unwanted=tuple(result.evaluation.unwanted),
         unwanted_model=_unwanted_model(outcome),
         corrections=tuple((stage.label, corrected.steps) for stage, corrected in outcome.stages),
-        figures=_figures(problem, part, modal, rows),
+        figures=_figures(problem, part, modal, rows, certified_modes, by, nodes_3d),
     )

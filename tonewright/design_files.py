@@ -128,6 +128,10 @@ def result_payload(report: DesignReport) -> dict[str, Any]:
             for m in report.unwanted
         ],
         "unwanted_modes_model": report.unwanted_model,
+        "modes": [
+            {"family": f, "order": n, "frequency_hz": hz} for f, n, hz in report.figures.modes
+        ],
+        "modes_model": report.figures.modes_model,
         "mode1_nodes_mm": list(report.nodes_mm),
         "design": {
             # each variable as a share (0 to 1) of its range: what a restart starts from
@@ -242,11 +246,15 @@ def part_toml(report: DesignReport) -> dict[str, bytes]:
 
 def spectrum_files(report: DesignReport) -> dict[str, bytes]:
     fig = report.figures
-    title = "Computed partials (stems) against targets (dotted)"
-    return {
-        f"spectrum.{fmt}": figure_bytes(spectrum_figure(fig.modes, fig.targets, title=title), fmt)
-        for fmt in ("png", "svg")
-    }
+    title = f"Partials in the {fig.modes_model} (stems) against targets (dotted)"
+    second_label = "beam model (not certifying)" if fig.beam_modes else ""
+
+    def make():
+        return spectrum_figure(
+            fig.modes, fig.targets, title=title, second=fig.beam_modes, second_label=second_label
+        )
+
+    return {f"spectrum.{fmt}": figure_bytes(make(), fmt) for fmt in ("png", "svg")}
 
 
 def profile_files(report: DesignReport) -> dict[str, bytes]:

@@ -165,7 +165,9 @@ def bar_fingerprint(
         "target": [
             [p.family, p.order, p.f_hz, p.tolerance_cents, p.weight] for p in bar.target.partials
         ],
-        "fidelity": fidelity,
+        # the default certifier changed (2D, then 3D): a bar designed under the old default
+        # is designed again
+        "fidelity": fidelity or "default: 2D pre-correction, 3D p-version certifier",
         "attempts": attempts,
     }
     return _digest(record)

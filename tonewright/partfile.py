@@ -453,7 +453,7 @@ class DesignTable(BaseModel):
     density_range: tuple[float, float] | None = None
     seed: int = Field(default=1, ge=0)
     budget: int = Field(default=2000, ge=50, le=100000)
-    fidelity: Literal["beam", "plane", "solid"] | None = None  # bars: plane by default
+    fidelity: Literal["beam", "plane", "solid"] | None = None  # bars: solid (3D) by default
     thickness_axis: Literal["T", "R"] = "T"  # wood: T quarter-sawn, R flat-sawn (2D/3D models)
 
     @model_validator(mode="after")

@@ -91,9 +91,23 @@ def spectrum_figure(
     modes: Sequence[tuple[str, int, float]],
     targets: Sequence[tuple[str, float, float]],
     title: str = "",
+    second: Sequence[tuple[str, int, float]] = (),
+    second_label: str = "",
 ):
-    """Computed modes as stems by family, target partials as black lines with tolerance."""
+    """Computed modes as stems by family, target partials as black lines with tolerance;
+    ``second`` (e.g. the beam model's modes beside the certifying model's) as short grey
+    dashed stems with a cross, labelled ``second_label``."""
     fig, ax = plt.subplots(figsize=(9, 3.2))
+    for i, (_family, _order, f) in enumerate(second):
+        ax.vlines(f, 0, 0.35, color="#888888", linestyle="--", linewidth=1.0)
+        ax.plot(
+            [f],
+            [0.35],
+            marker="x",
+            color="#888888",
+            markersize=4,
+            label=(second_label or "second model") if i == 0 else None,
+        )
     seen = set()
     for family, order, f in modes:
         if family == "strike":  # the pitch a chime is heard at, fitted to bending 4-6

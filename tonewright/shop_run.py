@@ -18,6 +18,7 @@ import numpy as np
 from tonewright.acoustics.pitch import strike_note_hz
 from tonewright.errors import InputError
 from tonewright.forward import Bar, String, Tube, families_of, solve
+from tonewright.modes_report import part_modes
 from tonewright.partfile import PartFile, load_part
 from tonewright.shop import ShopPart, TubeCut, WoundString
 from tonewright.shop.part import MISSED_MARK
@@ -98,18 +99,27 @@ def shop_part(
     beam solve made here when None."""
     part = part_file.to_part(base)
     counts = dict.fromkeys(families_of(part), 0)
-    # a tube's pitch is its strike note, fitted to bending modes 4-6
+    # a tube's pitch is its strike note, from bending mode 4 (6 solved for the cut sheet)
     counts["transverse" if isinstance(part, String) else "bending"] = (
         6 if isinstance(part, Tube) else 3
     )
     modal = solve(part, counts, tol_cents=0.01, theory=part_file.model.theory)
-    if certified_by is None:
-        certified_by = f"{part_file.model.theory.capitalize()} beam model, {modal.message}"
+    beam_label = f"{part_file.model.theory.capitalize()} beam model, {modal.message}"
     if not isinstance(part, Bar):
         return part, None, modal
+    nodes = modal.family("bending")[0].nodes_m
+    model_label = beam_label
     if partials is None:
-        bending = [m for m in modal.modes if m.family == "bending"][:3]
+        # a part file claims no partials: the certifying model's (3D for a bar of constant
+        # width), as 'modes' and 'design' give them
+        solved = part_modes(part_file, base, 3)
+        bending = [m for m in solved.modes if m.family == "bending"][:3]
         partials = tuple((f"{m.family} {m.order}", None, m.frequency_hz) for m in bending)
+        if solved.model.startswith("3D") and len(bending[0].nodes_m) == len(nodes):
+            nodes = bending[0].nodes_m
+            model_label = f"{solved.model}, {solved.message}"
+    if certified_by is None:
+        certified_by = model_label
     bar = part_file.bar
     if bar.width_profile:
         raise InputError("bar.width_profile: shop outputs draw bars of constant width only")
@@ -123,7 +133,6 @@ def shop_part(
         if x[-1] < bar.length:
             x = np.concatenate([x, [bar.length]])
     h = part.thickness(x)
-    nodes = modal.family("bending")[0].nodes_m
     spec = part_file.material_spec(base)
     holes = tuple(
         (

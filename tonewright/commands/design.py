@@ -74,10 +74,17 @@ def register(app: typer.Typer) -> None:
         ] = False,
         fidelity: Annotated[
             str | None,
-            typer.Option(help="Model that certifies a bar: beam, plane (default) or solid (3D)."),
+            typer.Option(
+                help="Model that certifies a bar: solid (default: 3D, torsion and lateral "
+                "modes included), plane (2D profile, bending only) or beam."
+            ),
         ] = None,
         beam_only: Annotated[
-            bool, typer.Option("--beam-only", help="Skip the 2D/3D correction (fast, rough).")
+            bool,
+            typer.Option(
+                "--beam-only",
+                help="Skip the 2D/3D correction (fast; can be tens of cents off in 3D).",
+            ),
         ] = False,
     ) -> None:
         """Design the undercut (or length, wall, density) that meets a target profile."""

@@ -52,13 +52,20 @@ def register(app: typer.Typer) -> None:
         count: Annotated[int, typer.Option("--count", "-n", help="Modes of each family.")] = 4,
         a4: Annotated[float, typer.Option("--a4", help="Pitch reference A4 in Hz.")] = 440.0,
         as_json: Annotated[bool, typer.Option("--json", help="Print JSON on stdout.")] = False,
+        model: Annotated[
+            str,
+            typer.Option(
+                help="auto: the 3D model that certifies designs for a bar of constant width "
+                "(the beam otherwise); solid; beam (fast, labelled as such)."
+            ),
+        ] = "auto",
     ) -> None:
         """Compute the partials of a bar, tube or string: frequency, ratio, note and nodes."""
         if not 1 <= count <= 50:
             raise InputError(f"--count {count}: give 1 to 50 modes per family")
         if not 300.0 <= a4 <= 600.0:
             raise InputError(f"--a4 {a4}: give the pitch reference in Hz (e.g. 440 or 442)")
-        solved = solve_part(file, count)
+        solved = solve_part(file, count, model)
         result, title = solved.result, solved.title
         payload = modes_payload(result, a4)
         if solved.kind == "tube":
@@ -68,11 +75,12 @@ def register(app: typer.Typer) -> None:
             return
         console = Console()
         console.print(_table(payload, title, node_rows=len(payload["modes"])))
+        console.print(f"model: {result.model}" + "".join(f"; {n}" for n in result.notes))
         if "strike_note" in payload:
             s = payload["strike_note"]
             console.print(
-                f"strike note (the pitch a chime is heard at; the 2:3:4 series fitted to "
-                f"bending 4-6): {s['frequency_hz']:.2f} Hz, {s['note']} {s['cents']:+.1f} cents",
+                f"strike note (the pitch a chime is heard at, an octave below bending 4): "
+                f"{s['frequency_hz']:.2f} Hz, {s['note']} {s['cents']:+.1f} cents",
                 markup=False,
             )
         console.print(

@@ -55,14 +55,13 @@ def _print(report: SoundReport, out: Path, a4_hz: float) -> None:
         + f"; listening at {x_l * 1e3:.1f} mm; mallet contact {report.contact_s * 1e3:g} ms"
     )
     console.print(_table(report.played, title, a4_hz))
+    console.print(f"model: {report.model}")
     if isinstance(report.part, Tube):
         bending = [m.frequency_hz for m in report.modal.family("bending")]
-        if len(bending) >= 6:
+        if len(bending) >= 4:
             f = strike_note_hz(bending)
             note, off = hz_to_note(f, a4_hz)
-            console.print(
-                f"strike note (bending 4-6 as a 2:3:4 series): {f:.2f} Hz, {note} {off:+.1f}"
-            )
+            console.print(f"strike note (an octave below bending 4): {f:.2f} Hz, {note} {off:+.1f}")
     console.print(
         f"notes in equal temperament at A4 = {a4_hz:g} Hz; T60: seconds for a partial to fall "
         "by 60 dB"
@@ -115,6 +114,13 @@ def register(app: typer.Typer) -> None:
         a4: Annotated[
             float, typer.Option("--a4", help="Pitch reference A4 in Hz for the note names.")
         ] = 440.0,
+        model: Annotated[
+            str,
+            typer.Option(
+                help="auto: a bar rings at the certifying 3D model's frequencies; beam: the "
+                "beam model's (fast)."
+            ),
+        ] = "auto",
     ) -> None:
         """Write what a strike on the part would sound like, and list the partials used."""
         check_a4(a4)
@@ -130,6 +136,7 @@ def register(app: typer.Typer) -> None:
             duration_s=duration,
             rate=rate,
             loss_factor=loss_factor,
+            model=model,
         )
         report = preview_sound(request)
         write_wav(out, report.sound.samples, report.sound.rate, overwrite=force)

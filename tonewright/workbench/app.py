@@ -154,19 +154,28 @@ def _part_summary(part_file) -> dict[str, Any]:
 
 
 def _modes_with_shapes(path: Path, count: int) -> dict[str, Any]:
-    """The ``modes`` table, each mode with its shape sampled along the part (scaled to 1)."""
-    from tonewright.modes_report import modes_payload, solve_part_file
+    """The ``modes`` table (the certifying model, named), each mode with its shape along the
+    part scaled to 1; shapes are drawn from the beam model's mode of the same family and
+    order (the 3D model's shapes are volumes)."""
+    from tonewright.forward import families_of, solve
+    from tonewright.modes_report import modes_payload, solve_part
     from tonewright.partfile import load_part
 
-    result, title = solve_part_file(path, count)
+    solved = solve_part(path, count)
     part_file, base = load_part(path)
-    x = np.linspace(0.0, part_file.to_part(base).length, 121)
-    payload = modes_payload(result, 440.0)
-    for entry, m in zip(payload["modes"], result.modes, strict=True):
+    part = part_file.to_part(base)
+    beam = solve(part, dict.fromkeys(families_of(part), count), tol_cents=0.1)
+    shapes = {(m.family, m.order): m for m in beam.modes}
+    x = np.linspace(0.0, part.length, 121)
+    payload = modes_payload(solved.result, 440.0)
+    for entry in payload["modes"]:
+        m = shapes.get((entry["family"], entry["order"]))
+        if m is None:
+            continue
         y = np.asarray(m.shape(x), dtype=float)
         y = y / (float(np.max(np.abs(y))) or 1.0)
         entry["shape"] = {"x_mm": np.round(x * 1e3, 2).tolist(), "y": np.round(y, 4).tolist()}
-    payload["title"] = title
+    payload["title"] = solved.title
     return payload
 
 

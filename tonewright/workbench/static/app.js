@@ -92,7 +92,8 @@ $("bar-save").addEventListener("click", async () => {
   } catch (e) { showBarError(e); }
 });
 
-function shapesSvg(modes) {
+function shapesSvg(all) {
+  const modes = all.filter((m) => m.shape);
   const w = 640, h = 46, pad = 4;
   const rows = modes.map((m, i) => {
     const xs = m.shape.x_mm, ys = m.shape.y, L = xs[xs.length - 1] || 1;
@@ -109,7 +110,7 @@ $("bar-modes").addEventListener("click", async () => {
   try {
     const m = await api("GET", `/api/modes?name=${encodeURIComponent($("bar-file").value)}&count=3`);
     const rows = m.modes.map((d) => `<tr><td>${esc(d.family)} ${d.order}</td><td>${fmt(d.frequency_hz, 2)}</td><td>${fmt(d.ratio, 3)}</td><td>${esc(d.note)} ${d.cents >= 0 ? "+" : ""}${fmt(d.cents, 1)}</td></tr>`).join("");
-    $("bar-modes-out").innerHTML = `<table id="modes-table"><tr><th>mode</th><th>Hz</th><th>ratio</th><th>note, cents (A4 = 440 Hz)</th></tr>${rows}</table>${shapesSvg(m.modes)}`;
+    $("bar-modes-out").innerHTML = `<p class="muted">model: ${esc(m.model || "")}; shapes drawn from the beam model</p><table id="modes-table"><tr><th>mode</th><th>Hz</th><th>ratio</th><th>note, cents (A4 = 440 Hz)</th></tr>${rows}</table>${shapesSvg(m.modes)}`;
   } catch (e) { $("bar-modes-out").innerHTML = ""; showBarError(e); }
 });
 
