@@ -8,7 +8,12 @@ from typing import Annotated, Literal
 
 import typer
 
-from tonewright.cli_support import atomic_write_text, guarded, prepare_out_dir
+from tonewright.cli_support import (
+    atomic_write_text,
+    check_folder_possible,
+    guarded,
+    prepare_out_dir,
+)
 from tonewright.errors import InputError
 from tonewright.forward import Tube
 from tonewright.shop import (
@@ -68,6 +73,7 @@ def register(app: typer.Typer) -> None:
         """Write what a maker takes to the bench: 1:1 template, drawing, DXF, cuts, G-code."""
         if not 0.5 <= spacing <= 100:
             raise InputError(f"--spacing {spacing}: give 0.5 to 100 mm")
+        check_folder_possible(out, f"--out {out}")  # before the solve, not after it
         source = load_shop_source(file)
         part_file, part, shop = source.part_file, source.part, source.shop
         missed = source.design is not None and not source.design.converged
