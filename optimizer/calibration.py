@@ -169,6 +169,39 @@ class ModuliModel:
         return np.concatenate(f), np.concatenate(dE), np.concatenate(dG)
 
 
+# Rayleigh-Ritz reduction: A(E, G) = a A_E + g A_G + A_s has eigenvectors that depend on
+# g / a (and weakly on a, through the supports); the wanted eigenvectors sampled across the
+# fit's range span a small space in which every (E, G) of the range is solved to rounding
+# (checked in tests/test_calibrate.py against the full matrices).
+_RITZ_SAMPLES = tuple(
+    (a, a * r)
+    for a in (1.0 / MAX_E_FACTOR, 1.0, MAX_E_FACTOR)
+    for r in np.geomspace(1.0 / MAX_RATIO_FACTOR, MAX_RATIO_FACTOR, 3)
+)
+_RITZ_EXTRA = 10  # eigenvectors past the wanted ones at each sample
+
+
+def _ritz_reduced(fam: _Family) -> _Family:
+    """``fam`` projected on the eigenvectors of its wanted modes sampled over the fit's range
+    of E and G/E; unchanged when that space is not much smaller than the full one."""
+    n = fam.A_E.shape[0]
+    top = min(fam.n_rigid + fam.count + _RITZ_EXTRA, n) - 1
+    vectors = []
+    for a, g in _RITZ_SAMPLES:
+        A = a * fam.A_E + g * fam.A_G + fam.A_s
+        vectors.append(
+            scipy.linalg.eigh(A, subset_by_index=(0, top), driver="evr", check_finite=False)[1]
+        )
+    U, sv, _ = scipy.linalg.svd(np.hstack(vectors), full_matrices=False, check_finite=False)
+    V = U[:, sv > 1e-10 * sv[0]]
+    if V.shape[1] > 0.6 * n:
+        return fam
+    project = lambda A: V.T @ A @ V  # noqa: E731
+    return _Family(
+        fam.name, fam.count, fam.n_rigid, project(fam.A_E), project(fam.A_G), project(fam.A_s)
+    )
+
+
 def moduli_model(
     bar: Bar,
     counts: Mapping[str, int] = DEFAULT_COUNTS,
@@ -195,13 +228,15 @@ def moduli_model(
             A = scipy.linalg.solve_triangular(Lc, X.T, lower=True, check_finite=False)
             return 0.5 * (A + A.T)
 
-        fam = _Family(
-            name=name,
-            count=min(counts[name], fam_split.M.shape[0] - fam_split.n_rigid),
-            n_rigid=fam_split.n_rigid,
-            A_E=reduce(fam_split.K_E),
-            A_G=reduce(fam_split.K_G),
-            A_s=reduce(fam_split.K_supports),
+        fam = _ritz_reduced(
+            _Family(
+                name=name,
+                count=min(counts[name], fam_split.M.shape[0] - fam_split.n_rigid),
+                n_rigid=fam_split.n_rigid,
+                A_E=reduce(fam_split.K_E),
+                A_G=reduce(fam_split.K_G),
+                A_s=reduce(fam_split.K_supports),
+            )
         )
         families.append(fam)
         labels += [(name, k + 1) for k in range(fam.count)]
