@@ -3,6 +3,7 @@ input. Bad input must give the same one-line message as the command line."""
 
 from __future__ import annotations
 
+import itertools
 import json
 import os
 from pathlib import Path
@@ -403,3 +404,17 @@ def test_tap_lines_are_named_by_the_part(client, shop):
     assert named[307] == "bending 1" and named[1222] == "bending 2" and named[2983] == "bending 3"
     assert named[483].startswith("torsion")  # the second line of this bar's tap
     assert "half.toml" in data["tap"]["identified_by"] or data["tap"]["identified_by"] != "none"
+
+
+def test_instrument_from_stock_shows_the_blank_schedule_and_why(client, shop):
+    stock = INSTRUMENT.split("[scaling]")[0] + (
+        "[stock]\nthicknesses = [10, 12]\nwidth_range = [28, 40]\nlength_range = [120, 260]\n"
+    )
+    (shop / "stock.toml").write_text(stock, encoding="utf-8")
+    view = client.get("/api/instrument", params={"name": "stock.toml"})
+    assert view.status_code == 200, view.text
+    bars = view.json()["bars"]
+    assert [b["note"] for b in bars] == ["C5", "C#5", "D5"]
+    widths = [b["width_mm"] for b in bars]
+    assert all(a >= b for a, b in itertools.pairwise(widths))  # never wider toward the treble
+    assert all(b["blank_reason"] for b in bars)  # each choice explained

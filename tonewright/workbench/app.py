@@ -439,6 +439,7 @@ def create_app(folder: Path, *, allow_remote: bool = False) -> FastAPI:
                 note = row.get("note") or next(iter(row.values()), "")
                 rows[note] = row
         history = store.bars_with_history()
+        why = {c.note: c.explanation for c in plan.schedule}  # blanks the tool sized from stock
         bars = []
         for b in plan.bars:
             part = b.part.get("bar", {})
@@ -459,13 +460,14 @@ def create_app(folder: Path, *, allow_remote: bool = False) -> FastAPI:
                     "thickness_mm": part.get("thickness"),
                     "status": status,
                     "design_status": (row or {}).get("status", "not designed"),
+                    "blank_reason": why.get(b.note),
                     "summary": row,
                     "bench": {"name": bench_name, "taps": bench["taps"], "cuts": bench["cuts"]},
                 }
             )
         figures = [
             workshop.relative(run / f)
-            for f in ("dimensions.png", "errors.png")
+            for f in ("blanks.png", "dimensions.png", "errors.png")
             if (run / f).is_file()
         ]
         return {"name": name, "title": plan.title, "bars": bars, "figures": figures}

@@ -162,9 +162,9 @@ async function openInstrument() {
     const bench = b.bench.taps || b.bench.cuts ? `${b.bench.taps} taps, ${b.bench.cuts} cuts` : "";
     const cents = [1, 2, 3, 4].filter((k) => s[`p${k}_partial`]).map((k) => `${esc(s[`p${k}_partial`])} ${esc(s[`p${k}_error_cents`])}`).join(", ");
     return `<tr><td>${esc(b.note)}</td><td>${fmt(b.length_mm)}</td><td>${fmt(b.width_mm)}</td><td>${fmt(b.thickness_mm)}</td><td>${cents}</td>` +
-      `<td class="${esc(b.design_status)}">${esc(b.status)}</td><td>${esc(s.message || "")}</td><td>${esc(bench)}</td></tr>`;
+      `<td class="${esc(b.design_status)}">${esc(b.status)}</td><td>${esc(s.message || "")}</td><td>${esc(bench)}</td><td class="muted">${esc(b.blank_reason || "")}</td></tr>`;
   }).join("");
-  $("inst-table").innerHTML = `<tr><th>note</th><th>length mm</th><th>width mm</th><th>thickness mm</th><th>error, cents</th><th>status</th><th>binding limit / message</th><th>at the bench</th></tr>${rows}`;
+  $("inst-table").innerHTML = `<tr><th>note</th><th>length mm</th><th>width mm</th><th>thickness mm</th><th>error, cents</th><th>status</th><th>binding limit / message</th><th>at the bench</th><th>why this blank</th></tr>${rows}`;
   $("inst-figures").innerHTML = inst.figures.map((f) => `<img alt="${esc(f)}" src="/api/file?path=${encodeURIComponent(f)}&t=${Date.now()}">`).join("");
   $("inst-status").textContent = `${inst.title}: ${inst.bars.length} bars`;
 }
