@@ -302,6 +302,11 @@ def _node_index(edges: np.ndarray, x: float) -> int:
     return i
 
 
+def is_flexible(family: str, coefficients: Mapping[str, np.ndarray]) -> bool:
+    """A string without bending stiffness: its transverse family takes C0 elements."""
+    return family == "transverse" and not np.any(coefficients["EI"])
+
+
 def assemble_family(
     part: Part,
     disc: Discretisation,
@@ -311,9 +316,10 @@ def assemble_family(
 ) -> FamilySystem:
     """Assemble K and M of one family, apply supports, and reduce to the free dofs.
 
-    ``flexible``: a string without bending stiffness (C0 elements); None decides from EI."""
+    ``flexible``: a string without bending stiffness (C0 elements); None decides from the
+    coefficients (:func:`is_flexible`)."""
     if flexible is None:
-        flexible = family == "transverse" and not np.any(coefficients["EI"])
+        flexible = is_flexible(family, coefficients)
     layouts, stiffness, mass = _family_terms(family, disc.theory, disc.degree, disc, flexible)
     n = sum(lay.size for lay in layouts)
     quad = disc.quad

@@ -42,6 +42,7 @@ from tonewright.forward.modal import (
     Discretisation,
     FamilySystem,
     assemble_family,
+    is_flexible,
 )
 
 __all__ = ["FamilyPattern", "family_pattern", "pattern_matrices", "pattern_modes"]
@@ -199,7 +200,7 @@ def family_pattern(
 ) -> FamilyPattern:
     """The pattern of ``family`` on ``disc`` (supports taken from ``part``). ``symmetric``:
     every design the pattern will see is mirror-symmetric, so split it if the part allows."""
-    flexible = family == "transverse" and not np.any(coefficients["EI"])
+    flexible = is_flexible(family, coefficients)
     system = assemble_family(part, disc, family, coefficients, flexible)
     zeros = {k: np.zeros_like(v) for k, v in coefficients.items()}
     # springs and point masses only, on the same elements (a stiff string stays C1)

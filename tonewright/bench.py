@@ -10,6 +10,7 @@ and turns results into report objects (and their JSON form).
 from __future__ import annotations
 
 import math
+from collections.abc import Mapping
 from dataclasses import dataclass, field, replace
 from pathlib import Path
 from types import MappingProxyType
@@ -74,6 +75,7 @@ __all__ = [
     "blank_from_part_file",
     "calibrate_blank",
     "calibration_payload",
+    "cut_of_step",
     "expected_modes",
     "goals_of",
     "identify_tap",
@@ -670,6 +672,21 @@ def _step_json(i: int, step: Step, goals) -> dict[str, Any]:
         # the thinnest point inside this step's windows once the step is cut
         "thinnest_in_window_after_mm": _mm(step.thinnest_m),
     }
+
+
+def cut_of_step(step: Mapping[str, Any]) -> Cut | None:
+    """The cut of a step as ``_step_json`` writes it (mm) or as recorded done at the bench;
+    None for a note of a cut without its windows and depth."""
+    if not step.get("windows_mm") or step.get("depth_mm") is None:
+        return None
+    windows = tuple((a * 1e-3, b * 1e-3) for a, b in step["windows_mm"])
+    return Cut(
+        0.5 * sum(windows[0]),
+        (step.get("tool_width_mm") or 0.0) * 1e-3,
+        step["depth_mm"] * 1e-3,
+        windows,
+        (step.get("eased_edge_mm") or 0.0) * 1e-3,
+    )
 
 
 def advice_payload(

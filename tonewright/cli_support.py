@@ -112,10 +112,9 @@ def _check_replaceable(path: Path, overwrite: bool) -> None:
         raise InputError(f"{path} exists already; pass --force to replace it")
 
 
-def check_folder_possible(folder: Path, prefix: str) -> None:
-    """Refuse, in one line after ``prefix``, a ``folder`` that could not be created (one of
-    its parents is a file, or the place is not writable). Leaves nothing behind: a missing
-    folder is made and removed again, so a long job learns this before it starts."""
+def _missing_folders(folder: Path, prefix: str) -> list[Path]:
+    """The folders to create for ``folder``, innermost first; refuses, in one line after
+    ``prefix``, a parent that is a file."""
     missing = []
     for parent in (folder, *folder.parents):
         if parent.is_symlink() or parent.exists():
@@ -123,25 +122,33 @@ def check_folder_possible(folder: Path, prefix: str) -> None:
                 raise InputError(f"{prefix}: {parent} is a file, not a folder")
             break
         missing.append(parent)
-    if not missing:
-        return
+    return missing
+
+
+def _create(folder: Path, prefix: str) -> None:
     try:
-        folder.mkdir(parents=True)
+        folder.mkdir(parents=True, exist_ok=True)
     except OSError as exc:
         reason = (exc.strerror or type(exc).__name__).lower()
         raise InputError(f"{prefix}: cannot create the folder {folder} ({reason})") from None
+
+
+def check_folder_possible(folder: Path, prefix: str) -> None:
+    """Refuse, in one line after ``prefix``, a ``folder`` that could not be created (one of
+    its parents is a file, or the place is not writable). Leaves nothing behind: a missing
+    folder is made and removed again, so a long job learns this before it starts."""
+    missing = _missing_folders(folder, prefix)
+    if not missing:
+        return
+    _create(folder, prefix)
     for made in missing:  # innermost first
         made.rmdir()
 
 
 def _make_folder(folder: Path, prefix: str) -> None:
     """Create ``folder`` (and its parents) or say in one line, after ``prefix``, why not."""
-    check_folder_possible(folder, prefix)
-    try:
-        folder.mkdir(parents=True, exist_ok=True)
-    except OSError as exc:
-        reason = (exc.strerror or type(exc).__name__).lower()
-        raise InputError(f"{prefix}: cannot create the folder {folder} ({reason})") from None
+    _missing_folders(folder, prefix)
+    _create(folder, prefix)
 
 
 def _temporary_beside(path: Path) -> tuple[int, Path]:

@@ -26,6 +26,7 @@ from fastapi.responses import FileResponse, HTMLResponse, JSONResponse, Streamin
 from pydantic import BaseModel, ConfigDict
 from threadpoolctl import threadpool_limits
 
+from tonewright.bench import cut_of_step
 from tonewright.cli_support import atomic_write_bytes, atomic_write_text
 from tonewright.errors import InputError
 from tonewright.workbench.folder import Workshop
@@ -92,23 +93,6 @@ class CutBody(_Body):
 MAX_RECORDED_DEPTH_MM = 3.0  # the advice's own limit on one step
 
 
-def _cut_of(data: dict[str, Any]):
-    """The recorded cut as the cut planner's ``Cut`` (None for a note without a window)."""
-    from tonewright.optimizer import Cut
-
-    if not data.get("windows_mm") or data.get("depth_mm") is None:
-        return None
-    windows = tuple((a * 1e-3, b * 1e-3) for a, b in data["windows_mm"])
-    width = (data.get("tool_width_mm") or 0.0) * 1e-3
-    return Cut(
-        0.5 * sum(windows[0]),
-        width,
-        data["depth_mm"] * 1e-3,
-        windows,
-        data.get("eased_edge_mm", 0.0) * 1e-3,
-    )
-
-
 def _error(message: str, status: int = 422) -> JSONResponse:
     return JSONResponse({"error": message}, status_code=status)
 
@@ -158,16 +142,16 @@ def _modes_with_shapes(path: Path, count: int) -> dict[str, Any]:
     part scaled to 1; shapes are drawn from the beam model's mode of the same family and
     order (the 3D model's shapes are volumes)."""
     from tonewright.forward import families_of, solve
-    from tonewright.modes_report import modes_payload, solve_part
+    from tonewright.modes_report import modes_payload, part_modes
     from tonewright.partfile import load_part
 
-    solved = solve_part(path, count)
     part_file, base = load_part(path)
+    solved = part_modes(part_file, base, count)
     part = part_file.to_part(base)
     beam = solve(part, dict.fromkeys(families_of(part), count), tol_cents=0.1)
     shapes = {(m.family, m.order): m for m in beam.modes}
     x = np.linspace(0.0, part.length, 121)
-    payload = modes_payload(solved.result, 440.0)
+    payload = modes_payload(solved, 440.0)
     for entry in payload["modes"]:
         m = shapes.get((entry["family"], entry["order"]))
         if m is None:
@@ -175,7 +159,7 @@ def _modes_with_shapes(path: Path, count: int) -> dict[str, Any]:
         y = np.asarray(m.shape(x), dtype=float)
         y = y / (float(np.max(np.abs(y))) or 1.0)
         entry["shape"] = {"x_mm": np.round(x * 1e3, 2).tolist(), "y": np.round(y, 4).tolist()}
-    payload["title"] = solved.title
+    payload["title"] = part_file.title or path.stem
     return payload
 
 
@@ -555,7 +539,7 @@ def create_app(folder: Path, *, allow_remote: bool = False) -> FastAPI:
         atomic_write_bytes(taps / name, bytes(data))
         try:
             with threadpool_limits(limits=1, user_api="blas"):
-                done = [_cut_of(e.data) for e in store.history(bar) if e.kind == "cut"]
+                done = [cut_of_step(e.data) for e in store.history(bar) if e.kind == "cut"]
                 cuts = [c for c in done if c is not None]
                 result = await asyncio.to_thread(_analyse_tap, workshop, bar, taps / name, cuts)
         except InputError:
