@@ -50,6 +50,7 @@ __all__ = [
     "Stage",
     "bar_solid_modes",
     "certifier_ends",
+    "design_width",
     "goal_frequencies",
     "high_fidelity_function",
     "part_element_ends",
@@ -171,6 +172,13 @@ def solid_top_hz(goals: Sequence[Goal]) -> float:
     return 1.25 * top
 
 
+def design_width(space, u: np.ndarray, blank_width: float) -> float:
+    """The width of design ``u``: the designed one when the width is a variable, else the
+    blank's (bending in the beam and 2D models does not depend on it; the 3D model's does)."""
+    w = space.width(u) if hasattr(space, "width") else None
+    return blank_width if w is None else w
+
+
 def high_fidelity_function(stage: Stage, space, blank_thickness: float, width: float, material):
     """``hf(u, goals)``: Hz of each goal's mode in the stage's model; the 3D stages also return
     the torsion and lateral modes (``HighFidelityModes``), so the clearance of unwanted modes
@@ -179,12 +187,13 @@ def high_fidelity_function(stage: Stage, space, blank_thickness: float, width: f
     def hf(u: np.ndarray, goals: Sequence[Goal]) -> np.ndarray | HighFidelityModes:
         part = space.part(u)
         top = solid_top_hz(goals)
+        w = design_width(space, u, width)
         if stage.model == "plane":
             if any(g.family not in ("bending", "strike") for g in goals):
                 raise InputError("the 2D model checks bending partials only: use fidelity 'solid'")
             res = plane_modes(
                 part.length,
-                width,
+                w,
                 blank_thickness,
                 part.thickness,
                 material,
@@ -196,7 +205,7 @@ def high_fidelity_function(stage: Stage, space, blank_thickness: float, width: f
             ends = certifier_ends(part.length, space.kinks(u))
             res = psolid_modes(
                 part.length,
-                width,
+                w,
                 blank_thickness,
                 part.thickness,
                 material,
@@ -208,7 +217,7 @@ def high_fidelity_function(stage: Stage, space, blank_thickness: float, width: f
         else:
             res = solid_modes(
                 part.length,
-                width,
+                w,
                 blank_thickness,
                 part.thickness,
                 material,
