@@ -22,7 +22,7 @@ than the one below it.
 
 from __future__ import annotations
 
-from collections.abc import Callable, Sequence
+from collections.abc import Callable, Mapping, Sequence
 from dataclasses import dataclass, replace
 
 import numpy as np
@@ -33,7 +33,16 @@ from tonewright.optimizer.screen import screen_bar
 from tonewright.optimizer.search import SearchSettings, polish
 from tonewright.optimizer.spaces import BarUndercut
 
-__all__ = ["BarNeeds", "BlankChoice", "StockRules", "blank_schedule", "clearance_margin"]
+__all__ = [
+    "BarNeeds",
+    "BlankChoice",
+    "ClearingWidth",
+    "StockRules",
+    "blank_schedule",
+    "clearance_margin",
+    "clearing_width",
+    "unwanted_scale",
+]
 
 _INFEASIBLE = 1e3  # cost of a bar that cannot reach its goals with a stock size
 _UNCLEAR = 10.0  # cost of a width that leaves an unwanted mode in a band
@@ -177,26 +186,48 @@ def _pre_design(
     return _PreDesign(worst <= slack, float(L), np.asarray(u[:2]), worst, binding)
 
 
+def _scaled(f: np.ndarray, ratios: np.ndarray | None) -> np.ndarray:
+    """``f`` times the ratios by order (orders past the array keep its last ratio)."""
+    if ratios is None or ratios.size == 0:
+        return f
+    return f * np.concatenate([ratios[: f.size], np.full(max(0, f.size - ratios.size), ratios[-1])])
+
+
+def _unwanted_hz(bar: Bar, clearance: Clearance) -> dict[str, np.ndarray]:
+    counts = dict.fromkeys(clearance.families, 4)
+    modes = modes_on_mesh(bar, counts, elements=8, degree=7)
+    return {
+        fam: np.sqrt(np.maximum(fm.lam, 0.0)) / (2 * np.pi) for fam, fm in modes.families.items()
+    }
+
+
 def clearance_margin(
-    bar: Bar, goals: Sequence[Goal], clearance: Clearance | None
+    bar: Bar,
+    goals: Sequence[Goal],
+    clearance: Clearance | None,
+    scale: Mapping[str, np.ndarray] | None = None,
+    coincident_is_clear: bool = True,
 ) -> tuple[float, str]:
     """Smallest gap / band over the unwanted modes (lateral, torsion) and the goal partials
     (>= 1: every mode clear; a mode within the coincidence distance counts as clear), and the
-    nearest mode, named."""
+    nearest mode, named. ``scale``: the beam's frequencies of each family multiplied by these
+    ratios by order (e.g. 3D over beam at a design, as the design's ``Evaluator`` does).
+    ``coincident_is_clear=False``: a mode within the coincidence distance counts by its gap
+    (a new width must not rely on a coincidence the retuned cut will not keep)."""
     if clearance is None:
         return np.inf, "no clearance asked"
     f_goal = np.array([g.f_hz for g in goals])
     band = clearance.keep_clear_hz(f_goal)
-    counts = dict.fromkeys(clearance.families, 4)
-    modes = modes_on_mesh(bar, counts, elements=8, degree=7)
     worst, label = np.inf, ""
-    for fam, fm in modes.families.items():
-        f = np.sqrt(np.maximum(fm.lam, 0.0)) / (2 * np.pi)
+    for fam, f in _unwanted_hz(bar, clearance).items():
+        f = _scaled(f, (scale or {}).get(fam))
         for k, fk in enumerate(f):
             if fk > 1.3 * f_goal.max():
                 break
             gaps = np.abs(fk - f_goal)
-            ratio = np.where(gaps <= clearance.coincidence_hz, np.inf, gaps / band)
+            ratio = gaps / band
+            if coincident_is_clear:
+                ratio = np.where(gaps <= clearance.coincidence_hz, np.inf, ratio)
             j = int(np.argmin(ratio))
             if ratio[j] < worst:
                 worst = float(ratio[j])
@@ -205,6 +236,63 @@ def clearance_margin(
                     f"(keep {band[j]:.0f} Hz clear)"
                 )
     return worst, label
+
+
+def unwanted_scale(
+    bar: Bar, clearance: Clearance, observed: Sequence[tuple[str, int, float]]
+) -> dict[str, np.ndarray]:
+    """Ratios by order of observed unwanted-mode frequencies (family, order, Hz; e.g. the 3D
+    model's at a design) to the beam's of the same bar: the space mapping that lets the cheap
+    beam model predict how those modes move with the width."""
+    beam = _unwanted_hz(bar, clearance)
+    out = {}
+    for fam, f in beam.items():
+        seen = sorted((k, hz) for fm, k, hz in observed if fm == fam and k <= f.size)
+        if seen:
+            out[fam] = np.array([hz / f[k - 1] for k, hz in seen])
+    return out
+
+
+@dataclass(frozen=True)
+class ClearingWidth:
+    width: float  # m
+    margin: float  # smallest gap / band (as ``clearance_margin``)
+    nearest: str  # the nearest unwanted mode, named
+
+
+def clearing_width(
+    bar: Bar,
+    goals: Sequence[Goal],
+    clearance: Clearance,
+    scale: Mapping[str, np.ndarray],
+    narrowest: float,
+    step: float = 0.5e-3,
+    widest: float | None = None,
+) -> ClearingWidth | None:
+    """A width for this cut that keeps every unwanted mode out of the goals' bands: the
+    widest, from ``step`` under the bar's width down to ``narrowest`` (m), that clears with
+    ``SPARE`` bands (the cut will be retuned at the new width and move the modes a little),
+    else the one of largest margin that clears at all; None when none does. Narrower only,
+    unless ``widest`` is given: then the narrowest wider width up to it (for advice on the
+    blank: a bar can be cut narrower from its blank, never wider). The frequencies are the
+    beam's at each width times ``scale`` (the ratios at the present width, see
+    ``unwanted_scale``): torsion rises as the bar narrows (G J / rho I_p ~ t^2 / b^2 for
+    b >> t) and lateral bending falls (E I_z / rho A ~ b^2), which the beam gets right even
+    where its levels are off."""
+    w0 = float(bar.width(0.0))
+    if widest is not None:
+        candidates = np.arange(w0 + step, widest + 1e-12, step)
+    else:
+        candidates = np.arange(w0 - step, narrowest - 1e-12, -step)
+    best: ClearingWidth | None = None
+    for w in candidates:
+        other = replace(bar, width=constant(w))
+        margin, label = clearance_margin(other, goals, clearance, scale, False)
+        if margin >= SPARE:
+            return ClearingWidth(float(w), margin, label)
+        if margin >= 1.0 and (best is None or margin > best.margin):
+            best = ClearingWidth(float(w), margin, label)
+    return best
 
 
 def _chain(costs: np.ndarray, values: Sequence[float], step: float | None) -> list[int]:

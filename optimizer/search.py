@@ -50,6 +50,7 @@ __all__ = [
     "SearchSettings",
     "Verdict",
     "certified_status",
+    "clearance_binds",
     "design",
     "exit_code",
     "polish",
@@ -79,6 +80,18 @@ STATUS_MESSAGES: dict[int, str] = {
     MISSED_WRITTEN_PART: "the certified solve of the written part misses the tolerance",
     MISSED_UNREACHABLE: "out of reach of any undercut within the limits (found before searching)",
 }
+
+
+# how a binding limit names the clearance of unwanted modes (verdict, certified_status)
+CLEARANCE_BINDS = "clearance of unwanted modes"
+
+
+def clearance_binds(status: int, binding: Sequence[str]) -> bool:
+    """Whether a miss is (also) the clearance of a torsion or lateral mode: a different width
+    may then get there where no cut can."""
+    if status in (MISSED_UNWANTED, MISSED_CERTIFIER_UNWANTED):
+        return True
+    return any(b.startswith(CLEARANCE_BINDS) for b in binding)
 
 
 def exit_code(status: int) -> int:
@@ -303,7 +316,7 @@ def verdict(evaluator: Evaluator, u: np.ndarray, log: EvaluationLog | None = Non
             m = crowded[0]
             binding = [
                 *binding,
-                f"clearance of unwanted modes ({m.family} mode {m.order} at {m.f_hz:.0f} Hz "
+                f"{CLEARANCE_BINDS} ({m.family} mode {m.order} at {m.f_hz:.0f} Hz "
                 f"crowds the {m.nearest_goal}; try another width or thickness)",
             ]
         status = MISSED_LIMIT
@@ -322,7 +335,7 @@ def verdict(evaluator: Evaluator, u: np.ndarray, log: EvaluationLog | None = Non
             f"{m.family} mode {m.order} at {m.f_hz:.1f} Hz is {m.gap_hz:.1f} Hz from the "
             f"{m.nearest_goal} (keep {m.band_hz:.0f} Hz clear or within {m.coincidence_hz:g} Hz)"
         )
-        return Verdict(MISSED_UNWANTED, msg, tuple([*binding, "clearance of unwanted modes"]))
+        return Verdict(MISSED_UNWANTED, msg, tuple([*binding, CLEARANCE_BINDS]))
     return Verdict(MET, STATUS_MESSAGES[MET], tuple(binding))
 
 

@@ -34,6 +34,7 @@ and the certified solve of the part as written, and returns an immutable ``Desig
 
 from __future__ import annotations
 
+import dataclasses
 from collections.abc import Callable, Mapping
 from dataclasses import dataclass
 from typing import Any
@@ -48,6 +49,7 @@ from tonewright.fidelity import (
     bar_solid_modes,
     certifier_ends,
     check_bar,
+    design_width,
     goal_frequencies,
     high_fidelity_function,
     solid_top_hz,
@@ -71,8 +73,9 @@ from tonewright.optimizer import (
     corrected_design,
     design,
 )
+from tonewright.optimizer.blanks import ClearingWidth, clearing_width, unwanted_scale
 from tonewright.optimizer.screen import Reach, screen_bar
-from tonewright.optimizer.search import rechecked, unreachable
+from tonewright.optimizer.search import clearance_binds, rechecked, unreachable
 from tonewright.optimizer.spaces import undercut_terms, undercut_thickness
 from tonewright.partfile import DesignTable, PartFile, parse_part
 from tonewright.tuning import ResolvedTarget, resolve
@@ -91,6 +94,7 @@ __all__ = [
     "achieved",
     "build_problem",
     "certify",
+    "clearing_width_for",
     "design_report",
     "goals_and_clearance",
     "part_table",
@@ -302,12 +306,6 @@ def run_design(
     settings = SearchSettings(seed=problem.table.seed, budget=problem.table.budget)
     fidelity = fidelity_of(problem, fidelity)
     material = None
-    if fidelity == "solid" and getattr(problem.space, "width_range", None):
-        # the 3D stage is built on one width; a width that moves needs a 3D mesh per design
-        raise InputError(
-            "design.width: a width range is designed with --fidelity beam or plane; check the "
-            "result in 3D with 'tonewright verify'"
-        )
     if fidelity != "beam":  # fail before the search, not after it
         check_bar(problem.blank)
         spec = problem.part_file.material_spec(problem.base_dir)
@@ -727,8 +725,9 @@ def certify_3d(problem: Problem, u: np.ndarray):
     bar = problem.part_file.bar
     top = solid_top_hz(problem.evaluator.goals)
     ends = certifier_ends(part.length, problem.space.kinks(u))
+    width = design_width(problem.space, u, bar.width)
     return bar_solid_modes(
-        part, bar.width, bar.thickness, _material_3d(problem), top, CERTIFY_MESH, ends
+        part, width, bar.thickness, _material_3d(problem), top, CERTIFY_MESH, ends
     )
 
 
@@ -823,7 +822,7 @@ def design_report(
         for r in rows
     )
     pf = problem.part_file
-    return DesignReport(
+    report = DesignReport(
         title=pf.title or "",
         status=result.status,
         message=result.message,
@@ -848,3 +847,55 @@ def design_report(
         corrections=tuple((stage.label, corrected.steps) for stage, corrected in outcome.stages),
         figures=_figures(problem, part, modal, rows, certified_modes, by, nodes_3d),
     )
+    advice = width_advice(problem, report)
+    if advice:
+        report = dataclasses.replace(report, binding=(*report.binding, advice))
+    return report
+
+
+def clearing_width_for(
+    problem: Problem, report: DesignReport, narrowest: float, widest: float | None = None
+) -> ClearingWidth | None:
+    """After a bar's design missed on the clearance of a torsion or lateral mode: a narrower
+    width (down to ``narrowest``, m) at which that design's unwanted modes, where its
+    certifying model put them, clear every partial's band (``optimizer.blanks``: the beam's
+    modes at each width times their 3D-over-beam ratios at this design); with ``widest``, a
+    wider one instead (advice on the blank). None when the miss is not the clearance, the
+    width is already a design variable, or no width clears."""
+    clearance = problem.evaluator.clearance
+    space = problem.space
+    # a mode within a band, even one close enough to count as coincident, can stall the
+    # 3D correction (the modes mix near a crossing): a width that moves it off helps too
+    crowded = any(m.gap_hz < m.band_hz for m in report.unwanted)
+    if (
+        report.converged
+        or clearance is None
+        or not isinstance(space, BarUndercut)
+        or space.width_range
+        or not (crowded or clearance_binds(report.status, report.binding))
+    ):
+        return None
+    part = parse_part(dict(report.part), where="designed part").to_part(problem.base_dir)
+    observed = [(m.family, m.order, m.f_hz) for m in report.unwanted]
+    scale = unwanted_scale(part, clearance, observed)
+    goals = problem.evaluator.goals
+    return clearing_width(part, goals, clearance, scale, narrowest, widest=widest)
+
+
+NARROWEST_ADVICE, WIDEST_ADVICE = 0.7, 1.25  # of the bar's width: the widths advised on
+
+
+def width_advice(problem: Problem, report: DesignReport) -> str | None:
+    """For a miss on a torsion or lateral mode: the width that would clear it, in words
+    (narrower: cut from this blank; else wider: a new blank), or None."""
+    if report.converged or problem.part_file.bar is None:
+        return None
+    w = float(report.part["bar"]["width"]) * 1e-3
+    why = "would keep the torsion and lateral modes clear (predicted from this design's modes)"
+    narrower = clearing_width_for(problem, report, NARROWEST_ADVICE * w)
+    if narrower is not None:
+        return f"a width of {narrower.width * 1e3:.1f} mm, cut from this blank, {why}"
+    wider = clearing_width_for(problem, report, w, widest=WIDEST_ADVICE * w)
+    if wider is not None:
+        return f"a blank {wider.width * 1e3:.1f} mm wide {why}"
+    return None

@@ -40,6 +40,8 @@ The file (lengths in mm unless a unit is written; notes in scientific pitch nota
     a4_hz = 440                   # optional: stretch_cents_per_octave, stretch_from
     material = "honduras-rosewood"   # library name, material file, or inline table
     attempts = 3                  # seeds tried per bar until one meets its target
+    max_narrowing = 0.15          # share of its planned width a bar may lose to keep
+                                  # torsion and lateral modes out of the partials' bands
     [[profile]]                   # target profile by sub-range; together they cover the range
     from = "C4"
     to = "B4"
@@ -365,6 +367,9 @@ class InstrumentFile(BaseModel):
     stock: StockTable | None = None
     design: dict[str, Any] = Field(default_factory=dict)
     attempts: int = Field(default=3, ge=1, le=10)
+    # a bar that misses because a torsion or lateral mode sits in a partial's band is
+    # designed again narrower (never wider: a blank cannot grow), by at most this share
+    max_narrowing: float = Field(default=0.15, ge=0.0, le=0.3)
     bar: tuple[BarOverride, ...] = ()
     blanks: BlanksTable = BlanksTable()
     resonators: ResonatorsTable | None = None
@@ -485,6 +490,7 @@ class InstrumentPlan:
     resonator_temperature_c: float | None
     resonator_end: str | None
     schedule: tuple[BlankChoice, ...] = ()  # the blanks the tool chose from [stock]
+    max_narrowing: float = 0.0  # share of a bar's width it may lose to clear unwanted modes
 
     def bar(self, note: str) -> BarPlan:
         for b in self.bars:
@@ -674,6 +680,7 @@ def plan_instrument(
         resonator_temperature_c=r.temperature_c if r else None,
         resonator_end=r.end if r else None,
         schedule=schedule,
+        max_narrowing=spec.max_narrowing,
     )
 
 

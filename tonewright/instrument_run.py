@@ -47,7 +47,12 @@ from threadpoolctl import threadpool_limits
 
 import tonewright
 from tonewright.cli_support import atomic_write_bytes, atomic_write_text
-from tonewright.design import DesignReport, build_problem, design_report
+from tonewright.design import (
+    DesignReport,
+    build_problem,
+    clearing_width_for,
+    design_report,
+)
 from tonewright.design_files import OUTPUTS as DESIGN_OUTPUTS
 from tonewright.design_files import design_files, result_payload, summary_lines, write_files
 from tonewright.errors import InputError
@@ -152,7 +157,11 @@ def _digest(record: Any) -> str:
 
 
 def bar_fingerprint(
-    bar: BarPlan, material: MaterialSpec, fidelity: str | None = None, attempts: int = 1
+    bar: BarPlan,
+    material: MaterialSpec,
+    fidelity: str | None = None,
+    attempts: int = 1,
+    max_narrowing: float = 0.0,
 ) -> str:
     """Hash of everything a bar's design depends on (see the module docstring)."""
     part = {k: v for k, v in bar.part.items() if k not in ("material", "design")}
@@ -169,6 +178,7 @@ def bar_fingerprint(
         # is designed again
         "fidelity": fidelity or "default: 2D pre-correction, 3D p-version certifier",
         "attempts": attempts,
+        "max_narrowing": max_narrowing,
     }
     return _digest(record)
 
@@ -221,6 +231,7 @@ class BarJob:
     shop_fp: str | None
     fidelity: str | None
     attempts: int
+    max_narrowing: float = 0.0  # share of the planned width a bar may lose (see below)
     start: Mapping[str, float] | None = None  # a reused neighbour's design variables
     waits_for_parent: bool = False  # the neighbour is designed in this run: start from it
 
@@ -246,21 +257,53 @@ def _shortfall(report: DesignReport) -> float:
     return 1.0 + worst
 
 
-def _design_with_restarts(job: BarJob, start: Mapping[str, float] | None) -> DesignReport:
-    """The design with the seeds seed, seed + 1, ... (``job.attempts`` at most) until one
-    meets the target; the best attempt is kept. The first attempt polishes the neighbour's
-    design first (``tonewright.scheduling``). A new seed starts the global search elsewhere,
-    which is what an evolution strategy stuck in a local minimum needs."""
-    part_file = parse_part(dict(job.part), where=f"bar {job.note}")
-    seed0 = part_file.design.seed
+NARROWING_ROUNDS = 2  # a narrower bar's retuned cut moves its modes: look once more
+
+
+def _narrowing_note(planned_mm: float, width_mm: float) -> str:
+    return (
+        f"; width narrowed from {planned_mm:.1f} to {width_mm:.1f} mm (cut from the planned "
+        "blank) to keep the torsion and lateral modes out of the partials' bands"
+    )
+
+
+def design_with_restarts(job: BarJob, start: Mapping[str, float] | None) -> DesignReport:
+    """The bar's design; the best attempt is kept. The first attempt polishes the neighbour's
+    design first (``tonewright.scheduling``). After a miss because a torsion or lateral mode
+    sits in a partial's band (no new seed helps there), the bar is designed again at the
+    widest narrower width that clears it in the certifying model
+    (``design.clearing_width_for``), down to ``job.max_narrowing`` of its planned width,
+    from the missed cut; the message says so. After other misses the next seed is tried
+    (seed, seed + 1, ..., ``job.attempts`` in all): a new seed starts the global search
+    elsewhere, which is what an evolution strategy stuck in a local minimum needs."""
+    part = dict(job.part)
+    part_file = parse_part(part, where=f"bar {job.note}")
+    seed = part_file.design.seed
+    planned = float(part["bar"]["width"])
+    narrowest = (1.0 - job.max_narrowing) * planned * 1e-3
+    seeds_tried, narrowings = 1, 0
     best: tuple[float, DesignReport] | None = None
-    for k in range(job.attempts):
-        problem = build_problem(part_file, None, seed0 + k)
-        report = design_report(problem, None, job.fidelity, start if k == 0 else None)
+    while True:
+        problem = build_problem(part_file, None, seed)
+        report = design_report(problem, None, job.fidelity, start)
+        if narrowings:
+            note = _narrowing_note(planned, float(part["bar"]["width"]))
+            report = dataclasses.replace(report, message=report.message + note)
         score = _shortfall(report)
         if best is None or score < best[0]:
             best = (score, report)
         if score == 0.0:
+            break
+        found = None
+        if job.max_narrowing > 0 and narrowings < NARROWING_ROUNDS:
+            found = clearing_width_for(problem, report, narrowest)
+        if found is not None:
+            part = {**part, "bar": {**part["bar"], "width": round(found.width * 1e3, 1)}}
+            part_file = parse_part(part, where=f"bar {job.note}")
+            start, narrowings = dict(report.variables), narrowings + 1
+        elif seeds_tried < job.attempts:
+            seed, start, seeds_tried = seed + 1, None, seeds_tried + 1
+        else:
             break
     return best[1]
 
@@ -281,7 +324,7 @@ def design_bar(job: BarJob, parent: BarOutcome | None = None) -> BarOutcome:
             if job.waits_for_parent:
                 met = parent is not None and parent.report is not None
                 start = parent.report.start_variables() if met else None
-            report = _design_with_restarts(job, start)
+            report = design_with_restarts(job, start)
         if job.shop is None:
             return BarOutcome(job, report)
         try:
@@ -732,7 +775,7 @@ def plan_run(
     plans: list[tuple[int, BarPlan, str, str | None, bool]] = []
     for i, b in enumerate(plan.bars):
         folder = out / BARS_DIR / b.note
-        fp = bar_fingerprint(b, plan.material, fidelity, plan.attempts)
+        fp = bar_fingerprint(b, plan.material, fidelity, plan.attempts, plan.max_narrowing)
         sfp = shop_fingerprint(fp, options) if options is not None else None
         record = {} if force else _read_record(folder)
         redo = not _design_done(folder, record, fp)
@@ -776,6 +819,7 @@ def plan_run(
                 shop_fp=sfp,
                 fidelity=fidelity,
                 attempts=plan.attempts,
+                max_narrowing=plan.max_narrowing,
                 start=start if isinstance(start, dict) else None,
                 waits_for_parent=parent is not None and parent in redone,
             )
