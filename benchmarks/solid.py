@@ -36,7 +36,7 @@ from tonewright.acoustics.pitch import cents  # noqa: E402
 from tonewright.forward.geometry import PiecewiseLinear  # noqa: E402
 from tonewright.forward.orthotropic import Orthotropic  # noqa: E402
 from tonewright.forward.plane import PlaneMesh, plane_modes  # noqa: E402
-from tonewright.forward.psolid import PMesh, psolid_modes  # noqa: E402
+from tonewright.forward.psolid import PMesh, psolid_convergence, psolid_modes  # noqa: E402
 from tonewright.forward.solid import match_modes, solid_modes  # noqa: E402
 
 from tonewright.design import build_problem, certify_3d, design_report  # noqa: E402
@@ -115,6 +115,29 @@ def forward_report(name: str, bar: dict, material, kinks: np.ndarray, quick: boo
     )
     _, t_plane = _median_time(
         lambda: plane_modes(**bar, material=material, count=6, mesh=PlaneMesh()), 3
+    )
+    conv = psolid_convergence(
+        **bar, material=material, count=8, mesh=CERTIFY_MESH, element_ends=ends, fmax_hz=top
+    )
+    est = np.array(
+        [
+            e
+            for m, e in zip(conv.result.modes, conv.error_cents, strict=True)
+            if m.order <= WANTED.get(m.family, 0)
+        ]
+    )
+    nested = np.array(
+        [
+            e
+            for m, e in zip(conv.result.modes, conv.nested_cents, strict=True)
+            if m.order <= WANTED.get(m.family, 0)
+        ]
+    )
+    worst = np.max(np.abs(err))
+    print(
+        f"  error estimate (worst wanted mode): {np.nanmax(np.abs(est)):.3f} cent "
+        f"({np.nanmax(np.abs(est)) / worst:.1f}x the true worst); nested change "
+        f"{np.nanmax(np.abs(nested)):.3f} cent ({np.nanmax(np.abs(nested)) / worst:.1f}x)"
     )
     print(f"  2D profile model: {t_plane:.2f} s (bending only)")
     err_hex = None

@@ -209,5 +209,5 @@ def test_a_bar_is_solved_in_3d_by_default_and_says_so(tmp_path):
     L, h = 0.3, 0.012
     f_eb = 4.7300408**2 / (2 * np.pi) * np.sqrt(E * h**2 / 12 / (rho * L**4))
     assert 0.99 * f_eb < first["frequency_hz"] < f_eb
-    assert first["error_cents"] < 0.1  # the nested estimate of the converged model
+    assert first["error_cents"] < 0.1  # the error estimate of the converged model
     assert len(first["nodes_mm"]) == 2

@@ -45,8 +45,9 @@ def test_bad_mesh_option(tmp_path):
 
 
 def test_the_default_is_the_certifying_model_with_an_error_estimate(tmp_path):
-    # the p-version model that certifies designs, each mode with its nested error estimate
-    # (the change from one degree lower, an upper bound: tests/test_psolid.py); on this
+    # the p-version model that certifies designs, each mode with its error estimate
+    # (extrapolated over three degrees, never above the change from one degree lower:
+    # tests/test_psolid.py); on this
     # uniform maple blank under 0.1 cent for bending 1-3, under 0.5 cent for every mode
     path = _write(
         tmp_path, 'material = "sugar-maple"\n[bar]\nlength = 400\nwidth = 50\nthickness = 22\n'

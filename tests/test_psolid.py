@@ -159,12 +159,26 @@ def test_nested_degrees_never_raise_a_frequency():
 def test_error_estimate_bounds_the_true_error_on_a_smooth_arch():
     conv = psolid_convergence(L, 0.06, 0.022, ARCH, WOOD, 8)
     ref = psolid_modes(L, 0.06, 0.022, ARCH, WOOD, 8, PMesh(nx=4, px=10, py=8, pz=7))
-    true = cents(conv.result.f_hz, match_modes(conv.result.modes, ref.modes))
-    # default mesh: every wanted mode within 0.1 cent, and the nested estimate is larger than
-    # the true error (it is the lower space's error)
-    assert np.all(np.abs(true) < 0.1)
-    assert np.all(np.abs(conv.error_cents) >= np.abs(true) - 1e-3)
-    assert conv.max_error_cents < 0.5
+    true = np.abs(cents(conv.result.f_hz, match_modes(conv.result.modes, ref.modes)))
+    # default mesh: every wanted mode within 0.1 cent; the extrapolated estimate (Aitken over
+    # degrees p-2, p-1, p) bounds the true error of every mode and is within 3x of it at the
+    # worst mode (measured 1.3-6x per mode, 1.5x at the worst; the nested change was 4.5x)
+    assert np.all(true < 0.1)
+    assert np.all(conv.error_cents >= true)
+    assert conv.max_error_cents <= 3 * true.max()
+    assert np.all(conv.error_cents <= np.abs(conv.nested_cents) + 1e-12)
+
+
+@pytest.mark.slow
+def test_error_estimate_at_sharp_corners_stays_the_nested_bound():
+    # at the re-entrant corners of the straight-taper cut the rate is algebraic (Szabo &
+    # Babuska 1991, ch. 14), and extrapolating as if exponential measured 0.48x the true error
+    # on one mode: the estimate stays the nested change there, which bounds it
+    conv = psolid_convergence(L, B, T0, UNDERCUT, WOOD, 8)
+    ref = psolid_modes(L, B, T0, UNDERCUT, WOOD, 8, PMesh(nx=4, px=10, py=8, pz=7))
+    true = np.abs(cents(conv.result.f_hz, match_modes(conv.result.modes, ref.modes)))
+    np.testing.assert_array_equal(conv.error_cents, conv.nested_cents)
+    assert np.all(np.abs(conv.error_cents) >= true)
 
 
 # ---------------------------------------------------------------------------------------------

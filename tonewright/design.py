@@ -720,7 +720,7 @@ def _material_3d(problem: Problem):
 
 def certify_3d(problem: Problem, u: np.ndarray):
     """The 3D certifier's solve of the design ``u`` (its own mesh, the cut's kinks as element
-    ends) with the nested error estimate (``forward.psolid.psolid_convergence``)."""
+    ends) with its error estimate (``forward.psolid.psolid_convergence``)."""
     part = problem.space.part(u)
     bar = problem.part_file.bar
     top = solid_top_hz(problem.evaluator.goals)
@@ -735,7 +735,8 @@ WANTED_3D = {"bending": 4, "torsion": 3, "lateral": 2}
 
 
 def _wanted_error(conv) -> float:
-    """Largest nested error estimate (cents) over the modes a bar's design cares about."""
+    """Largest error estimate (cents, ``PSolidConvergence.error_cents``) over the modes a
+    bar's design cares about."""
     errs = [
         abs(float(e))
         for m, e in zip(conv.result.modes, conv.error_cents, strict=True)
@@ -795,8 +796,9 @@ def design_report(
             nodes_3d = tuple(x * 1e3 for x in top_face_nodes(res.coords, res.shapes[first]))
             worst = _wanted_error(conv)
             converged_note = (
-                f"3D model {res.n_dof} unknowns, error under {worst:.2g} cent (nested "
-                f"estimate: the change from one degree lower); beam model converged to "
+                f"3D model {res.n_dof} unknowns, error under {worst:.2g} cent (estimate "
+                f"extrapolated over three degrees, the change from one degree lower at sharp "
+                f"corners); beam model converged to "
                 f"{modal.max_error_cents:.2g} cent"
             )
         elif corrected.final.modes:

@@ -240,8 +240,8 @@ def bar_solid_modes(
     mesh: PMesh = PART_MESH,
     element_ends: np.ndarray | None = None,
 ):
-    """The p-version 3D modes of a bar up to ``fmax_hz`` with the nested error estimate (the
-    same model one degree lower): a ``PSolidConvergence``. Without ``element_ends`` the
+    """The p-version 3D modes of a bar up to ``fmax_hz`` with its error estimate (the
+    same model one and two degrees lower): a ``PSolidConvergence``. Without ``element_ends`` the
     profile is taken as stations (``part_element_ends``)."""
     if element_ends is None:
         element_ends = part_element_ends(part, blank_thickness)
@@ -314,9 +314,7 @@ def verify_part(
             "status": res.message,
             "max_error_cents": round(conv.max_error_cents, 4) if errors else None,
         }
-        label = (
-            "3D orthotropic solid, p-version hexahedra (nested error estimate); beam: Timoshenko"
-        )
+        label = "3D orthotropic solid, p-version hexahedra (estimated error); beam: Timoshenko"
     else:
         try:
             res = solid_modes(

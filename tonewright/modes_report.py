@@ -1,7 +1,7 @@
 """The partials of a part file, laid out for a table or JSON (``tonewright modes``).
 
 A bar of constant width is solved by the model that certifies designs, the p-version 3D solid
-(``tonewright.fidelity.bar_solid_modes``, with its nested error estimate per mode); the beam
+(``tonewright.fidelity.bar_solid_modes``, with its error estimate per mode); the beam
 model is the option ``model="beam"`` and the only model of tubes, strings and bars of varying
 width. Every result names its model.
 """
@@ -41,7 +41,7 @@ class SolidMode:
     family: str
     order: int
     frequency_hz: float
-    error_cents: float  # nested estimate (NaN where the lower space has no such mode)
+    error_cents: float  # error estimate (NaN where the lower space has no such mode)
     nodes_m: tuple[float, ...]
 
 
@@ -98,7 +98,7 @@ def _solid_modes(part_file: PartFile, base: Path | None, part: Bar, count: int) 
     notes = [f"3D modes up to {top:.0f} Hz"]
     if part.holes:
         notes.append("the 3D model leaves out the suspension holes")
-    message = f"{res.message} to {worst:.2g} cent (nested estimate), {res.n_dof} unknowns"
+    message = f"{res.message} to {worst:.2g} cent (estimated), {res.n_dof} unknowns"
     ok = res.status == 0 and bool(errors)
     return PartModes(tuple(modes), ok, worst, message, MODEL_LABELS["psolid"], tuple(notes))
 

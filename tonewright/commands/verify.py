@@ -59,7 +59,7 @@ def print_verification(console: Console, payload: dict, name: str) -> None:
     info = payload["mesh"]
     line = f"  model: {payload['model']}; mesh {info['name']}, {info['dofs']} unknowns"
     if info.get("max_error_cents") is not None:
-        line += f"; nested error estimate under {info['max_error_cents']:.2g} cent"
+        line += f"; error estimate under {info['max_error_cents']:.2g} cent"
     console.print(line)
 
 
