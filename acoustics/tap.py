@@ -493,14 +493,22 @@ def _fit_group(
     def unpack(p):
         return p[:K], p[K:n_nl], p[n_nl:]
 
+    last: list = [None, None]  # the solver asks for the Jacobian where it just evaluated
+
+    def design_at(p):
+        key = p[:n_nl]
+        if last[0] is None or not np.array_equal(last[0], key):
+            last[0], last[1] = key.copy(), _design(key[:K], key[K:], N, m)
+        return last[1]
+
     def residual(p):
-        w, la, coef = unpack(p)
-        B, _ = _design(w, la, N, m)
+        B, _ = design_at(p)
+        coef = unpack(p)[2]
         return _stack(B) @ coef - Dst
 
     def jacobian(p):
-        w, la, coef = unpack(p)
-        B, parts = _design(w, la, N, m)
+        B, parts = design_at(p)
+        coef = unpack(p)[2]
         a, b = coef[:K], coef[K : 2 * K]
         J = np.empty((nb, p.size), dtype=complex)
         for k, (al, _G, dG, _Gc, dGc) in enumerate(parts):
