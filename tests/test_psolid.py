@@ -156,6 +156,7 @@ def test_nested_degrees_never_raise_a_frequency():
     assert np.all(high.f_hz <= low.f_hz * (1 + 1e-10))
 
 
+@pytest.mark.slow
 def test_error_estimate_bounds_the_true_error_on_a_smooth_arch():
     conv = psolid_convergence(L, 0.06, 0.022, ARCH, WOOD, 8)
     ref = psolid_modes(L, 0.06, 0.022, ARCH, WOOD, 8, PMesh(nx=4, px=10, py=8, pz=7))
