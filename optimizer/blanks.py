@@ -28,7 +28,13 @@ from dataclasses import dataclass, replace
 import numpy as np
 from tonewright.forward.geometry import Bar, constant
 from tonewright.forward.modal import modes_on_mesh
-from tonewright.optimizer.objective import Clearance, EvaluationLog, Evaluator, Goal
+from tonewright.optimizer.objective import (
+    Clearance,
+    EvaluationLog,
+    Evaluator,
+    Goal,
+    ratios_by_order,
+)
 from tonewright.optimizer.screen import screen_bar
 from tonewright.optimizer.search import SearchSettings, polish
 from tonewright.optimizer.spaces import BarUndercut
@@ -186,13 +192,6 @@ def _pre_design(
     return _PreDesign(worst <= slack, float(L), np.asarray(u[:2]), worst, binding)
 
 
-def _scaled(f: np.ndarray, ratios: np.ndarray | None) -> np.ndarray:
-    """``f`` times the ratios by order (orders past the array keep its last ratio)."""
-    if ratios is None or ratios.size == 0:
-        return f
-    return f * np.concatenate([ratios[: f.size], np.full(max(0, f.size - ratios.size), ratios[-1])])
-
-
 def _unwanted_hz(bar: Bar, clearance: Clearance) -> dict[str, np.ndarray]:
     counts = dict.fromkeys(clearance.families, 4)
     modes = modes_on_mesh(bar, counts, elements=8, degree=7)
@@ -220,7 +219,7 @@ def clearance_margin(
     band = clearance.keep_clear_hz(f_goal)
     worst, label = np.inf, ""
     for fam, f in _unwanted_hz(bar, clearance).items():
-        f = _scaled(f, (scale or {}).get(fam))
+        f = f * ratios_by_order((scale or {}).get(fam), f.size)
         for k, fk in enumerate(f):
             if fk > 1.3 * f_goal.max():
                 break

@@ -56,6 +56,7 @@ __all__ = [
     "Goal",
     "UnwantedMode",
     "mac",
+    "ratios_by_order",
 ]
 
 CENTS_PER_LN = 1200.0 / np.log(2.0)
@@ -87,6 +88,14 @@ class Clearance:
     keep_clear_hz: Callable[[np.ndarray], np.ndarray]
     coincidence_hz: float = 3.0
     weight: float = 1.0
+
+
+def ratios_by_order(ratios: np.ndarray | None, n: int) -> np.ndarray:
+    """``n`` ratios by mode order from a family's array (orders past it keep its last ratio;
+    none: 1), as ``Evaluator.with_unwanted_scale`` applies them."""
+    if ratios is None or ratios.size == 0:
+        return np.ones(n)
+    return np.concatenate([ratios[:n], np.full(max(0, n - ratios.size), ratios[-1])])
 
 
 @dataclass(frozen=True)
@@ -239,10 +248,7 @@ class Evaluator:
         return np.array([g.f_hz for g in self.goals])
 
     def _ratios(self, family: str, n: int) -> np.ndarray:
-        r = self.unwanted_scale.get(family)
-        if r is None or r.size == 0:
-            return np.ones(n)
-        return np.concatenate([r[:n], np.full(max(0, n - r.size), r[-1])])
+        return ratios_by_order(self.unwanted_scale.get(family), n)
 
     def _converged_degree(self, part: Part) -> int:
         """Lowest degree whose nested (p - 1 vs p) error estimate is within mesh_tol_cents

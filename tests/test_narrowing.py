@@ -13,11 +13,11 @@ from __future__ import annotations
 
 import dataclasses
 import json
-import math
 from pathlib import Path
 
 import numpy as np
 import pytest
+from test_solid import saint_venant_torsion_hz
 from tonewright.forward import Bar, Material, constant
 from tonewright.optimizer import Clearance, Goal
 from tonewright.optimizer.blanks import (
@@ -39,16 +39,6 @@ ROSEWOOD = Material(E=24e9, G=1.512e9, rho=1010.0, nu=0.476)  # library values, 
 BAND = Clearance(("torsion", "lateral"), HalfCriticalBand(1.0), 3.0)
 runner = CliRunner()
 EXAMPLES = Path(__file__).resolve().parents[1] / "examples"
-
-
-def _saint_venant_torsion_hz(L: float, b: float, t: float, n: int, G: float, rho: float) -> float:
-    # beta(b / t) by the series of Timoshenko & Goodier (1951), eq. (155), b >= t
-    r = b / t
-    series = sum(math.tanh((2 * k + 1) * math.pi * r / 2) / (2 * k + 1) ** 5 for k in range(50))
-    beta = (1 - 192 / (math.pi**5 * r) * series) / 3
-    J = beta * b * t**3
-    Ip = b * t * (b**2 + t**2) / 12
-    return n / (2 * L) * math.sqrt(G * J / (rho * Ip))
 
 
 def _uniform(width: float) -> Bar:
@@ -74,13 +64,13 @@ def test_a_narrower_width_clears_a_torsion_mode_on_a_partial():
     assert found is not None and 0.051 <= found.width < 0.06
     assert found.margin >= SPARE and found.nearest.startswith("torsion 2")
     # the closed form agrees that the mode is out of the band at that width
-    f_sv = _saint_venant_torsion_hz(0.45, found.width, 0.022, 2, ROSEWOOD.G, ROSEWOOD.rho)
+    f_sv = saint_venant_torsion_hz(0.45, found.width, 0.022, ROSEWOOD.G, ROSEWOOD.rho, 2)
     band = HalfCriticalBand(1.0)(np.array([goals[0].f_hz]))[0]
     assert f_sv - goals[0].f_hz > band
     # and the beam's torsion moves with the width as Saint-Venant's does (within 2 %)
     narrower = _unwanted_hz(dataclasses.replace(bar, width=constant(found.width)), BAND)
     rise_beam = narrower["torsion"][1] / t2
-    rise_sv = f_sv / _saint_venant_torsion_hz(0.45, 0.06, 0.022, 2, ROSEWOOD.G, ROSEWOOD.rho)
+    rise_sv = f_sv / saint_venant_torsion_hz(0.45, 0.06, 0.022, ROSEWOOD.G, ROSEWOOD.rho, 2)
     assert rise_beam == pytest.approx(rise_sv, rel=0.02)
 
 

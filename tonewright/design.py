@@ -877,7 +877,7 @@ def clearing_width_for(
         or not (crowded or clearance_binds(report.status, report.binding))
     ):
         return None
-    part = parse_part(dict(report.part), where="designed part").to_part(problem.base_dir)
+    part = space.part(np.array([v for _, v in report.variables]))
     observed = [(m.family, m.order, m.f_hz) for m in report.unwanted]
     scale = unwanted_scale(part, clearance, observed)
     goals = problem.evaluator.goals

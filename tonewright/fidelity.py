@@ -187,43 +187,23 @@ def high_fidelity_function(stage: Stage, space, blank_thickness: float, width: f
     def hf(u: np.ndarray, goals: Sequence[Goal]) -> np.ndarray | HighFidelityModes:
         part = space.part(u)
         top = solid_top_hz(goals)
-        w = design_width(space, u, width)
+        bar = (
+            part.length,
+            design_width(space, u, width),
+            blank_thickness,
+            part.thickness,
+            material,
+        )
         if stage.model == "plane":
             if any(g.family not in ("bending", "strike") for g in goals):
                 raise InputError("the 2D model checks bending partials only: use fidelity 'solid'")
-            res = plane_modes(
-                part.length,
-                w,
-                blank_thickness,
-                part.thickness,
-                material,
-                fmax_hz=top,
-                mesh=stage.mesh,
-            )
+            res = plane_modes(*bar, fmax_hz=top, mesh=stage.mesh)
             return goal_frequencies(res, goals, stage.label, top)
         if stage.model == "psolid":
             ends = certifier_ends(part.length, space.kinks(u))
-            res = psolid_modes(
-                part.length,
-                w,
-                blank_thickness,
-                part.thickness,
-                material,
-                count=8,
-                mesh=stage.mesh,
-                element_ends=ends,
-                fmax_hz=top,
-            )
+            res = psolid_modes(*bar, count=8, mesh=stage.mesh, element_ends=ends, fmax_hz=top)
         else:
-            res = solid_modes(
-                part.length,
-                w,
-                blank_thickness,
-                part.thickness,
-                material,
-                fmax_hz=top,
-                mesh=stage.mesh,
-            )
+            res = solid_modes(*bar, fmax_hz=top, mesh=stage.mesh)
         families = {f: res.family_hz(f) for f in ("torsion", "lateral")}
         modes = tuple((m.family, m.order, float(m.f_hz)) for m in res.modes)
         return HighFidelityModes(goal_frequencies(res, goals, stage.label, top), families, modes)
