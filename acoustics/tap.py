@@ -35,11 +35,16 @@ The unwindowed N-point DFT of one truncated decaying sinusoid is a geometric ser
 exact at every bin, with no window and no edge approximation (Bertocco, Offelli & Petri 1994).
 For each group of nearby peaks, this closed form plus a complex linear background (the tails of
 everything outside the group) is fitted to the DFT bins around the group by nonlinear least
-squares (``scipy.optimize.least_squares``, trust-region reflective, analytic Jacobian), with
-the fitted contributions of the other groups subtracted (two Gauss-Seidel sweeps), so a loud
-neighbour does not bias a weak partial. Parameters: ``omega_k``, ``log alpha_k`` (nonlinear),
-``Re C_k``, ``Im C_k`` and the background (linear, started by linear least squares on a grid of
-decay rates). Two lines that the detection window merged leave a structured residual in
+squares, with the fitted contributions of the other groups subtracted (two Gauss-Seidel
+sweeps), so a loud neighbour does not bias a weak partial. The amplitudes ``Re C_k``,
+``Im C_k`` and the background enter linearly: for given ``omega_k`` and ``log alpha_k`` they
+are the linear least-squares solution, and the solver (MINPACK's Levenberg-Marquardt through
+``scipy.optimize.least_squares``) sees only those 2K nonlinear parameters, with Kaufman's
+Jacobian of the projected residual (variable projection: Golub & Pereyra 1973; Kaufman 1975).
+Their bounds (a frequency near its detected peak, a decay between 1000 records and a line
+four times wider than its band) enter through ``theta = lo + (hi - lo)(1 + sin phi) / 2``
+(James & Roos 1975). The decays start from the best of a grid of shared trial decays.
+Two lines that the detection window merged leave a structured residual in
 their group: a component is added at the residual's largest bin while that halves the residual
 (at most twice per group). A weak line hidden under a loud line's skirt is found by
 subtracting all fitted partials in the time domain and running the detection again on what
@@ -58,6 +63,13 @@ References
 - Bertocco, M., Offelli, C. & Petri, D. (1994), "Analysis of damped sinusoidal signals via a
   frequency-domain interpolation algorithm", IEEE Trans. Instrum. Meas. 43(2), 245-250
   (from memory).
+- Golub, G.H. & Pereyra, V. (1973), "The differentiation of pseudo-inverses and nonlinear
+  least squares problems whose variables separate", SIAM J. Numer. Anal. 10(2), 413-432.
+- Kaufman, L. (1975), "A variable projection method for solving separable nonlinear least
+  squares problems", BIT 15, 49-57.
+- James, F. & Roos, M. (1975), "MINUIT: a system for function minimization and analysis of
+  the parameter errors and correlations", Comput. Phys. Commun. 10, 343-367 (the sine
+  transform of bounded parameters; from memory).
 - Smith, J.O. (2011), *Spectral Audio Signal Processing*, W3K Publishing, "Quadratic
   Interpolation of Spectral Peaks" (from memory).
 """
@@ -72,6 +84,7 @@ from numpy.typing import ArrayLike, NDArray
 from scipy import fft as sp_fft
 from scipy.optimize import least_squares
 from scipy.signal import find_peaks
+from threadpoolctl import threadpool_limits
 from tonewright.acoustics.pitch import ratio_to_cents
 
 from tonewright.errors import InputError
@@ -456,6 +469,22 @@ def _linear_solve(B: NDArray[np.complex128], D: NDArray[np.complex128]):
     return coef, float(resid @ resid)
 
 
+def _nonlinear_columns(
+    parts: list[tuple], coef: NDArray[np.float64], K: int
+) -> NDArray[np.complex128]:
+    """d(model)/d(omega_k) and d(model)/d(log alpha_k) at fixed linear coefficients."""
+    a, b = coef[:K], coef[K : 2 * K]
+    J = np.empty((parts[0][1].size, 2 * K), dtype=complex)
+    for k, (al, _G, dG, _Gc, dGc) in enumerate(parts):
+        # d/d omega: dG/du * i for u, dGc/du * (-i) for conj(u)
+        dGw, dGcw = 1j * dG, -1j * dGc
+        # d/d log(alpha) = alpha d/d alpha, and du/d alpha = -1 for both
+        dGl, dGcl = -al * dG, -al * dGc
+        J[:, k] = a[k] * 0.5 * (dGw + dGcw) + b[k] * 0.5j * (dGw - dGcw)
+        J[:, K + k] = a[k] * 0.5 * (dGl + dGcl) + b[k] * 0.5j * (dGl - dGcl)
+    return J
+
+
 def _fit_group(
     D: NDArray[np.complex128],
     m: NDArray[np.float64],
@@ -466,11 +495,18 @@ def _fit_group(
     log_alpha0: NDArray[np.float64] | None,
     omega_start: NDArray[np.float64] | None = None,
 ) -> _GroupFit:
-    """Fit K decaying sinusoids plus a linear background to DFT bins ``D`` at ``m``."""
+    """Fit K decaying sinusoids plus a linear background to DFT bins ``D`` at ``m``.
+
+    Variable projection (Golub & Pereyra 1973): for given frequencies and decays the
+    amplitudes and the background are the linear least-squares solution, so the solver sees
+    only the 2K nonlinear parameters, with Kaufman's (1975) Jacobian of the projected
+    residual. The bounds enter through theta = lo + (hi - lo)(1 + sin phi) / 2 (James & Roos
+    1975), so MINPACK's Levenberg-Marquardt (``method="lm"``) needs none."""
     K = omega0.size
     nb = m.size
     log_alpha_lo = np.log(1e-3 / N)  # tau up to 1000 records
     log_alpha_hi = np.log(4.0 * np.pi * nb / N)  # a line four times wider than the band
+    Dst = _stack(D)
 
     if log_alpha0 is None:
         # Start the decays on a grid: linear least squares for each shared trial decay.
@@ -480,63 +516,55 @@ def _fit_group(
             if rss < best[0]:
                 best = (rss, np.full(K, la))
         log_alpha0 = best[1]
-    log_alpha0 = np.clip(log_alpha0, log_alpha_lo, log_alpha_hi)
-    coef0, _ = _linear_solve(_design(omega0, log_alpha0, N, m)[0], D)
-
-    n_nl = 2 * K
-    p0 = np.concatenate([omega0, log_alpha0, coef0])
-    lo = np.concatenate([omega_lo, np.full(K, log_alpha_lo), np.full(coef0.size, -np.inf)])
-    hi = np.concatenate([omega_hi, np.full(K, log_alpha_hi), np.full(coef0.size, np.inf)])
-    p0[:n_nl] = np.clip(p0[:n_nl], lo[:n_nl], hi[:n_nl])
-    Dst = _stack(D)
-
-    def unpack(p):
-        return p[:K], p[K:n_nl], p[n_nl:]
+    lo = np.concatenate([omega_lo, np.full(K, log_alpha_lo)])
+    hi = np.concatenate([omega_hi, np.full(K, log_alpha_hi)])
+    half = 0.5 * (hi - lo)
+    theta0 = np.clip(np.concatenate([omega0, log_alpha0]), lo, hi)
+    phi0 = np.arcsin(np.clip((theta0 - lo) / half - 1.0, -1.0, 1.0))
 
     last: list = [None, None]  # the solver asks for the Jacobian where it just evaluated
 
-    def design_at(p):
-        key = p[:n_nl]
-        if last[0] is None or not np.array_equal(last[0], key):
-            last[0], last[1] = key.copy(), _design(key[:K], key[K:], N, m)
+    def projection_at(phi):
+        if last[0] is None or not np.array_equal(last[0], phi):
+            theta = lo + half * (1.0 + np.sin(phi))
+            B, parts = _design(theta[:K], theta[K:], N, m)
+            U, s, Vt = np.linalg.svd(_stack(B), full_matrices=False)
+            rank = int(np.sum(s > s[0] * 1e-12 * max(U.shape)))
+            U, s, Vt = U[:, :rank], s[:rank], Vt[:rank]
+            Ud = U.T @ Dst
+            coef = Vt.T @ (Ud / s)
+            last[0], last[1] = phi.copy(), (parts, U, coef, U @ Ud - Dst)
         return last[1]
 
-    def residual(p):
-        B, _ = design_at(p)
-        coef = unpack(p)[2]
-        return _stack(B) @ coef - Dst
+    def residual(phi):
+        return projection_at(phi)[3]
 
-    def jacobian(p):
-        B, parts = design_at(p)
-        coef = unpack(p)[2]
-        a, b = coef[:K], coef[K : 2 * K]
-        J = np.empty((nb, p.size), dtype=complex)
-        for k, (al, _G, dG, _Gc, dGc) in enumerate(parts):
-            # d/d omega: dG/du * i for u, dGc/du * (-i) for conj(u)
-            dGw, dGcw = 1j * dG, -1j * dGc
-            # d/d log(alpha) = alpha d/d alpha, and du/d alpha = -1 for both
-            dGl, dGcl = -al * dG, -al * dGc
-            J[:, k] = a[k] * 0.5 * (dGw + dGcw) + b[k] * 0.5j * (dGw - dGcw)
-            J[:, K + k] = a[k] * 0.5 * (dGl + dGcl) + b[k] * 0.5j * (dGl - dGcl)
-        J[:, n_nl:] = B
-        return _stack(J)
+    def jacobian(phi):
+        parts, U, coef, _ = projection_at(phi)
+        Jn = _stack(_nonlinear_columns(parts, coef, K))
+        Jn -= U @ (U.T @ Jn)
+        return Jn * (half * np.cos(phi))
 
     sol = least_squares(
         residual,
-        p0,
+        phi0,
         jac=jacobian,
-        bounds=(lo, hi),
-        method="trf",
+        method="lm",
         x_scale="jac",
         xtol=1e-12,
         ftol=1e-12,
         gtol=1e-12,
         max_nfev=MAX_FIT_EVALUATIONS,
     )
-    w, la, coef = unpack(sol.x)
-    J = jacobian(sol.x)
-    r = residual(sol.x)
-    dof = max(1, r.size - sol.x.size)
+    theta = lo + half * (1.0 + np.sin(sol.x))
+    w, la = theta[:K], theta[K:]
+    B, parts = _design(w, la, N, m)
+    coef, _ = _linear_solve(B, D)
+    # covariance of all parameters from the full Jacobian at the solution
+    J = np.concatenate([_stack(_nonlinear_columns(parts, coef, K)), _stack(B)], axis=1)
+    r = _stack(B) @ coef - Dst
+    n_nl = 2 * K
+    dof = max(1, r.size - J.shape[1])
     s2 = float(r @ r) / dof
     scale = np.linalg.norm(J, axis=0)
     scale[scale == 0] = 1.0
@@ -732,6 +760,33 @@ def find_partials(
     clipped start is skipped. A peak whose fit does not settle is reported from the spectrum
     (``Partial.method == "peak"``) rather than dropped.
     """
+    # hundreds of tiny least-squares problems: one BLAS thread is fastest (threads that wait
+    # on each other cost more than the sums)
+    with threadpool_limits(limits=1, user_api="blas"):
+        return _find_partials(
+            samples,
+            rate,
+            count,
+            fmin,
+            fmax,
+            skip_s,
+            min_snr_db,
+            min_prominence_db,
+            dynamic_range_db,
+        )
+
+
+def _find_partials(
+    samples: ArrayLike,
+    rate: float,
+    count: int | None,
+    fmin: float,
+    fmax: float | None,
+    skip_s: float,
+    min_snr_db: float,
+    min_prominence_db: float,
+    dynamic_range_db: float,
+) -> TapResult:
     x, fmax_eff = _validate(samples, rate, count, fmin, fmax, skip_s)
     need_s = max(MIN_ANALYSED_S, MIN_PERIODS_AT_FMIN / fmin)
     warnings: list[str] = []
@@ -789,13 +844,17 @@ def find_partials(
         raw2, notes2 = _analyse(x[start + late : start + late + N2], detect_args, min_snr_db)
         if raw2:
             # refer the later record's amplitudes to the earlier start; keep the early-only
-            # lines (short partials that have died by then)
+            # lines (short partials that have died by then). A late line that would have been
+            # more than 20 dB louder at the start has mostly died before the late record:
+            # the early record measured it better (and its extrapolation would swamp the
+            # levels of everything else).
             raw2 = [
                 (f, sd, a * np.exp(late / (tau * rate)) if np.isfinite(tau) else a, tau, sdt, how)
                 for f, sd, a, tau, sdt, how in raw2
+                if not (np.isfinite(tau) and late / (tau * rate) > LATE_GAIN_LN)
             ]
             f2 = np.array([r[0] for r in raw2])
-            early = [r for r in raw if np.min(np.abs(f2 - r[0])) > 2.0 * rate / N2]
+            early = [r for r in raw if not f2.size or np.min(np.abs(f2 - r[0])) > 2.0 * rate / N2]
             raw, notes = raw2 + early, notes2
             warnings.append(
                 f"reverberation beside the partials: analysed from {(start + late) / rate:.3f} s, "
@@ -861,6 +920,7 @@ def find_partials(
 ROOM_NEIGHBOUR_CENTS = 40.0  # a room's response to a partial lies this close to it ...
 ROOM_DECAY_RATIO = 0.25  # ... and dies at least this much faster
 MAX_LATE_START_S = 0.25
+LATE_GAIN_LN = float(np.log(10.0))  # 20 dB: see find_partials
 
 
 def _room_settling(raw: list[tuple] | None, rate: float) -> int:
@@ -1014,14 +1074,19 @@ class _SpectrumPeaks:
         return (f, sd_f, amp, tau, float("nan"), "peak")
 
 
-def _synthesize(fits: list[_GroupFit], N: int) -> NDArray[np.float64]:
-    """Time signal ``sum_k Re(C_k exp((-alpha_k + i omega_k) n))`` of all fitted partials."""
-    n = np.arange(N)
-    out = np.zeros(N)
-    for fit in fits:
-        for w, al, c in zip(fit.omega, fit.alpha, fit.C, strict=True):
-            out += np.real(c * np.exp(complex(-al, w) * n))
-    return out
+def _synthesize(fits: list[_GroupFit], N: int, block: int = 512) -> NDArray[np.float64]:
+    """Time signal ``sum_k Re(C_k exp((-alpha_k + i omega_k) n))`` of all fitted partials.
+
+    With ``n = b block + j``, ``z^n = z^(b block) z^j``: two short tables of exponentials and
+    one matrix product instead of an exponential per partial and sample."""
+    u = np.concatenate([-f.alpha + 1j * f.omega for f in fits]) if fits else np.zeros(0)
+    C = np.concatenate([f.C for f in fits]) if fits else np.zeros(0)
+    if u.size == 0:
+        return np.zeros(N)
+    starts = np.arange(0, N, block)
+    head = np.exp(np.outer(starts, u)) * C  # (blocks, K)
+    tail = np.exp(np.outer(u, np.arange(block)))  # (K, block)
+    return np.real(head @ tail).reshape(-1)[:N]
 
 
 def _accepted(
