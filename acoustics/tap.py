@@ -168,13 +168,15 @@ class TapResult:
 
 
 def damped_sinusoid_dft(
-    u: complex, N: int, m: NDArray[np.float64]
+    u: complex | NDArray[np.complex128], N: int, m: NDArray[np.float64]
 ) -> tuple[NDArray[np.complex128], NDArray[np.complex128]]:
     """``G(u) = sum_{n<N} exp(u n) exp(-2 pi i m n / N)`` and ``dG/du`` at bins ``m``.
 
     ``G = expm1(N u) / expm1(u_m)`` with ``u_m = u - 2 pi i m / N`` (geometric series);
-    expm1 keeps precision when ``u_m`` is small (a slow decay close to a bin).
+    expm1 keeps precision when ``u_m`` is small (a slow decay close to a bin). An array of
+    ``u`` gives one row per ``u``.
     """
+    u = np.asarray(u, dtype=complex)[..., None]
     um = u - 2j * np.pi * m / N
     Em = np.expm1(um)
     EN = np.expm1(N * u)
@@ -424,12 +426,10 @@ def _partials_dft(
     m: NDArray[np.float64],
 ) -> NDArray[np.complex128]:
     """DFT at bins ``m`` of ``sum_k Re(C_k exp(u_k n))``, ``n < N``."""
-    out = np.zeros(m.shape, dtype=complex)
-    for w, al, c in zip(omega, alpha, C, strict=True):
-        G, _ = damped_sinusoid_dft(complex(-al, w), N, m)
-        Gc, _ = damped_sinusoid_dft(complex(-al, -w), N, m)
-        out += 0.5 * (c * G + np.conj(c) * Gc)
-    return out
+    if omega.size == 0:
+        return np.zeros(m.shape, dtype=complex)
+    G, _ = damped_sinusoid_dft(np.concatenate([-alpha + 1j * omega, -alpha - 1j * omega]), N, m)
+    return 0.5 * (np.concatenate([C, np.conj(C)]) @ G)
 
 
 def _design(
@@ -438,25 +438,18 @@ def _design(
     N: int,
     m: NDArray[np.float64],
 ) -> tuple[NDArray[np.complex128], list[tuple]]:
-    """Linear basis (bins x (2K + 4)) and the pieces needed for the nonlinear derivatives."""
+    """Linear basis (bins x (2K + 4)) and the pieces needed for the nonlinear derivatives:
+    ``(alpha, G, dG, Gc, dGc)``, one row per partial for ``u`` and for ``conj(u)``."""
     K = omega.size
     mid = 0.5 * (m[0] + m[-1])
     mu = (m - mid) / max(1.0, 0.5 * (m[-1] - m[0]))
-    cols = []
-    parts = []
-    for k in range(K):
-        al = np.exp(log_alpha[k])
-        G, dG = damped_sinusoid_dft(complex(-al, omega[k]), N, m)
-        Gc, dGc = damped_sinusoid_dft(complex(-al, -omega[k]), N, m)
-        parts.append((al, G, dG, Gc, dGc))
+    al = np.exp(log_alpha)
+    G_all, dG_all = damped_sinusoid_dft(np.concatenate([-al + 1j * omega, -al - 1j * omega]), N, m)
+    G, Gc, dG, dGc = G_all[:K], G_all[K:], dG_all[:K], dG_all[K:]
     # x[n] = a e^{-alpha n} cos(omega n) - b e^{-alpha n} sin(omega n), C = a + i b
-    for _al, G, _dG, Gc, _dGc in parts:
-        cols.append(0.5 * (G + Gc))
-    for _al, G, _dG, Gc, _dGc in parts:
-        cols.append(0.5j * (G - Gc))
     ones = np.ones_like(mu, dtype=complex)
-    cols += [ones, 1j * ones, mu + 0j, 1j * mu]
-    return np.stack(cols, axis=1), parts
+    B = np.concatenate([0.5 * (G + Gc), 0.5j * (G - Gc), [ones, 1j * ones, mu + 0j, 1j * mu]])
+    return B.T, (al, G, dG, Gc, dGc)
 
 
 def _stack(z: NDArray[np.complex128]) -> NDArray[np.float64]:
@@ -469,20 +462,17 @@ def _linear_solve(B: NDArray[np.complex128], D: NDArray[np.complex128]):
     return coef, float(resid @ resid)
 
 
-def _nonlinear_columns(
-    parts: list[tuple], coef: NDArray[np.float64], K: int
-) -> NDArray[np.complex128]:
+def _nonlinear_columns(parts: tuple, coef: NDArray[np.float64], K: int) -> NDArray[np.complex128]:
     """d(model)/d(omega_k) and d(model)/d(log alpha_k) at fixed linear coefficients."""
-    a, b = coef[:K], coef[K : 2 * K]
-    J = np.empty((parts[0][1].size, 2 * K), dtype=complex)
-    for k, (al, _G, dG, _Gc, dGc) in enumerate(parts):
-        # d/d omega: dG/du * i for u, dGc/du * (-i) for conj(u)
-        dGw, dGcw = 1j * dG, -1j * dGc
-        # d/d log(alpha) = alpha d/d alpha, and du/d alpha = -1 for both
-        dGl, dGcl = -al * dG, -al * dGc
-        J[:, k] = a[k] * 0.5 * (dGw + dGcw) + b[k] * 0.5j * (dGw - dGcw)
-        J[:, K + k] = a[k] * 0.5 * (dGl + dGcl) + b[k] * 0.5j * (dGl - dGcl)
-    return J
+    al, _G, dG, _Gc, dGc = parts
+    a, b = coef[:K, None], coef[K : 2 * K, None]
+    # d/d omega: dG/du * i for u, dGc/du * (-i) for conj(u)
+    dGw, dGcw = 1j * dG, -1j * dGc
+    # d/d log(alpha) = alpha d/d alpha, and du/d alpha = -1 for both
+    dGl, dGcl = -al[:, None] * dG, -al[:, None] * dGc
+    Jw = a * 0.5 * (dGw + dGcw) + b * 0.5j * (dGw - dGcw)
+    Jl = a * 0.5 * (dGl + dGcl) + b * 0.5j * (dGl - dGcl)
+    return np.concatenate([Jw, Jl]).T
 
 
 def _fit_group(
@@ -643,12 +633,13 @@ def _refine(
     detect_ratio = 10.0 ** (min_snr_db / 10.0) * np.log(2.0)
 
     def data(gi: int, fits: list[_GroupFit | None]) -> NDArray[np.complex128]:
-        m = m_all[bands[gi]]
-        D = X[bands[gi]].copy()
-        for gj, other in enumerate(fits):
-            if gj != gi and other is not None:
-                D -= _partials_dft(other.omega, other.alpha, other.C, N, m)
-        return D
+        others = [f for gj, f in enumerate(fits) if gj != gi and f is not None]
+        if not others:
+            return X[bands[gi]].copy()
+        omega, alpha, C = (
+            np.concatenate([getattr(f, k) for f in others]) for k in "omega alpha C".split()
+        )
+        return X[bands[gi]] - _partials_dft(omega, alpha, C, N, m_all[bands[gi]])
 
     fits: list[_GroupFit | None] = [None] * len(groups)
     for _sweep in range(2):
@@ -995,8 +986,9 @@ def _analyse(
         order = np.argsort(f_peak)
         f_peak, half_width = f_peak[order], half_width[order]
 
-    # A peak whose fit did not settle is still a line: report it from the spectrum.
     peaks = _SpectrumPeaks(seg, rate, min_snr_db)
+    raw = _contradicted_fits(raw, peaks, T, notes)
+    # A peak whose fit did not settle is still a line: report it from the spectrum.
     fitted_f = np.array([r[0] for r in raw])
     # a weak fit is only a line when the spectrum shows it clearly (10 dB over detection)
     candidates = [(f_d, 0.0) for f_d in dropped] + [(f_d, 10.0) for f_d in weak]
@@ -1015,6 +1007,35 @@ def _analyse(
         )
 
     return raw, notes
+
+
+def _contradicted_fits(
+    raw: list[tuple], peaks: _SpectrumPeaks, T: float, notes: list[str]
+) -> list[tuple]:
+    """Fits that the spectrum contradicts, replaced by the spectral peak.
+
+    For one exponentially decaying line the peak of the windowed spectrum lies at the line's
+    frequency (the falling half-Hann window is a sum of three exponentials, and their
+    Lorentzians add to a magnitude symmetric about it). An isolated line (no other within
+    two resolutions) whose fit lies further from that peak than three combined standard
+    deviations does not ring as one exponential (a sample's envelope, a pair too close to
+    resolve): the peak is what is heard, and the disagreement is its uncertainty."""
+    out = []
+    for r in raw:
+        f, sd = r[0], r[1]
+        isolated = all(abs(q[0] - f) > 2.0 / T for q in raw if q is not r)
+        line = peaks.line_near(f, 1.5 / T) if isolated and r[5] == "fit" else None
+        if line is not None:
+            gap = abs(line[0] - f)
+            if gap > 2.0 * np.hypot(sd, line[1]):
+                out.append((line[0], max(line[1], gap), *line[2:]))
+                notes.append(
+                    f"the fit at {f:.2f} Hz lies {gap:.2g} Hz off the spectral peak (the ring "
+                    f"is not one exponential); reported the peak (+- {max(line[1], gap):.2g} Hz)"
+                )
+                continue
+        out.append(r)
+    return out
 
 
 class _SpectrumPeaks:

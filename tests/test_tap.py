@@ -286,3 +286,26 @@ def test_too_short_says_how_long_to_record():
     x = strike([440.0], [1.0], [1.0], 8000, 0.3, pre_s=0.0)
     with pytest.raises(InputError, match=r"need at least 0\.600 s.*fmin=5"):
         find_partials(x, 8000, fmin=5.0)
+
+
+def test_a_fit_the_spectrum_contradicts_is_reported_from_the_peak():
+    # One exponential line at 1000 Hz: the windowed spectrum's peak sits on it (the falling
+    # half-Hann window is a sum of three exponentials whose Lorentzians add to a magnitude
+    # symmetric about the line). A "fit" 1.5 Hz off it with a tiny claimed spread is replaced
+    # by the peak, with the disagreement as its spread; a fit on the line is kept.
+    from tonewright.acoustics.tap import _contradicted_fits, _SpectrumPeaks
+
+    rate, N = 44100, 44100
+    n = np.arange(N)
+    seg = np.exp(-n / (0.3 * rate)) * np.cos(2 * np.pi * 1000.0 * n / rate + 0.4)
+    seg += np.random.default_rng(3).normal(0.0, 1e-4, N)
+    peaks = _SpectrumPeaks(seg, rate, 15.0)
+    good = (1000.0005, 0.001, 1.0, 0.3, 0.01, "fit")
+    off = (1001.5, 0.001, 1.0, 0.3, 0.01, "fit")
+    notes: list[str] = []
+    kept = _contradicted_fits([good], peaks, 1.0, notes)
+    assert kept == [good] and not notes
+    (line,) = _contradicted_fits([off], peaks, 1.0, notes)
+    assert line[5] == "peak" and abs(cents_off(line[0], 1000.0)) < 0.05
+    assert line[1] >= abs(line[0] - off[0])  # the disagreement is in the stated spread
+    assert "not one exponential" in notes[0]
