@@ -416,6 +416,7 @@ class _GroupFit:
     omega_hi: NDArray[np.float64]
     residual: NDArray[np.complex128]  # data minus model on the group's bins
     omega_start: NDArray[np.float64]  # where the fit started (the detected peak)
+    band: tuple[int, int]  # first and last DFT bin fitted
 
 
 def _partials_dft(
@@ -577,6 +578,7 @@ def _fit_group(
         omega_hi=omega_hi,
         residual=-(r[:nb] + 1j * r[nb:]),
         omega_start=np.asarray(omega0 if omega_start is None else omega_start, float).copy(),
+        band=(int(m[0]), int(m[-1])),
     )
 
 
@@ -614,8 +616,14 @@ def _refine(
     f_peak: NDArray[np.float64],
     half_width_hz: NDArray[np.float64],
     min_snr_db: float,
+    previous: list[_GroupFit] | None = None,
 ) -> list[_GroupFit]:
-    """Fit every detected peak, group by group; add components the residual still shows."""
+    """Fit every detected peak, group by group; add components the residual still shows.
+
+    With ``previous`` (the fits of an earlier round on the same record) only the new peaks
+    are fitted: a previous group whose band overlaps a new peak's is fitted again together
+    with it, from where it was; the others are kept as they are (a weak new line moves a
+    group it does not overlap by a small fraction of its uncertainty)."""
     N = seg.size
     X = sp_fft.rfft(seg)
     m_all = np.arange(X.size, dtype=float)
@@ -626,14 +634,40 @@ def _refine(
     lo = np.clip(np.floor(m_peak - h), 1, X.size - 2).astype(int)
     hi = np.clip(np.ceil(m_peak + h), 1, X.size - 2).astype(int)
     groups = _groups(lo, hi, m_peak)
-    bands = [np.arange(lo[g[0]], max(hi[j] for j in g) + 1) for g in groups]
+    kept = list(previous or [])
+    bands, starts = [], []
+    for g in groups:
+        reach = 2.0 * np.pi * 0.75 * h[g].min() / N
+        omega_det = 2.0 * np.pi * m_peak[g] / N
+        a, b = lo[g[0]], max(hi[j] for j in g)
+        joined = [
+            f
+            for f in kept
+            if f.band[0] <= b and f.band[1] >= a and f.omega.size + len(g) <= MAX_GROUP + 1
+        ][:1]
+        start = (omega_det - reach, omega_det + reach, omega_det, None, omega_det)
+        if joined:
+            old = joined[0]
+            kept = [f for f in kept if f is not old]
+            a, b = min(a, old.band[0]), max(b, old.band[1])
+            la_new = np.full(len(g), np.median(np.log(old.alpha)))
+            start = tuple(
+                np.concatenate([o, n])
+                for o, n in zip(
+                    (old.omega_lo, old.omega_hi, old.omega, np.log(old.alpha), old.omega_start),
+                    (*start[:3], la_new, start[4]),
+                    strict=True,
+                )
+            )
+        bands.append(np.arange(a, b + 1))
+        starts.append(start)
     # Expected noise power per bin: median of |X|^2 is ln 2 times its mean for Gaussian noise.
     power_db = 10.0 * np.log10(np.abs(X) ** 2 + 1e-300)
     noise_power = 10.0 ** (_noise_floor_db(m_all / bins_per_hz, power_db) / 10.0) / np.log(2.0)
     detect_ratio = 10.0 ** (min_snr_db / 10.0) * np.log(2.0)
 
     def data(gi: int, fits: list[_GroupFit | None]) -> NDArray[np.complex128]:
-        others = [f for gj, f in enumerate(fits) if gj != gi and f is not None]
+        others = kept + [f for gj, f in enumerate(fits) if gj != gi and f is not None]
         if not others:
             return X[bands[gi]].copy()
         omega, alpha, C = (
@@ -643,20 +677,14 @@ def _refine(
 
     fits: list[_GroupFit | None] = [None] * len(groups)
     for _sweep in range(2):
-        for gi, g in enumerate(groups):
+        for gi in range(len(groups)):
             prev = fits[gi]
-            reach = 2.0 * np.pi * 0.75 * h[g].min() / N
-            omega_det = 2.0 * np.pi * m_peak[g] / N
-            fits[gi] = _fit_group(
-                data(gi, fits),
-                m_all[bands[gi]],
-                N,
-                omega_det - reach if prev is None else prev.omega_lo,
-                omega_det + reach if prev is None else prev.omega_hi,
-                omega_det if prev is None else prev.omega,
-                None if prev is None else np.log(prev.alpha),
-                omega_det if prev is None else prev.omega_start,
-            )
+            if prev is None:
+                start = starts[gi]
+            else:
+                start = (prev.omega_lo, prev.omega_hi, prev.omega, np.log(prev.alpha))
+                start += (prev.omega_start,)
+            fits[gi] = _fit_group(data(gi, fits), m_all[bands[gi]], N, *start)
 
     # Two lines closer than the detection window resolves show up as one peak whose fit
     # leaves a structured residual: add a component at the residual's peak while that pays.
@@ -688,7 +716,7 @@ def _refine(
             if rss_new > 0.5 * rss_old or abs(trial.C[-1]) < MIN_AMPLITUDE_SD * trial.sd_amp[-1]:
                 break
             fits[gi] = trial
-    return [f for f in fits if f is not None]
+    return kept + [f for f in fits if f is not None]
 
 
 # --------------------------------------------------------------------------- public
@@ -966,8 +994,9 @@ def _analyse(
         )
         return None, notes
 
+    fits: list[_GroupFit] | None = None
     for _round in range(MAX_ROUNDS):
-        fits = _refine(seg, rate, f_peak, half_width, min_snr_db)
+        fits = _refine(seg, rate, f_peak, half_width, min_snr_db, fits)
         raw, dropped, weak = _accepted(fits, rate, fmin, fmax_eff)
         # A weak partial masked by a loud neighbour's skirt appears once the fitted
         # partials are subtracted: search the residual and refit with what it reveals.
@@ -979,12 +1008,8 @@ def _analyse(
             f_new, hw_new = f_new[f_new_ok], hw_new[f_new_ok]
         if f_new.size == 0:
             break
-        # Lorentzian line: -6 dB half-width = sqrt(3) alpha / (2 pi) in Hz.
-        hw_fit = np.array([np.sqrt(3.0) / (2.0 * np.pi * r[3]) for r in raw])
-        f_peak = np.concatenate([f_fit, f_new])
-        half_width = np.concatenate([hw_fit, hw_new])
-        order = np.argsort(f_peak)
-        f_peak, half_width = f_peak[order], half_width[order]
+        order = np.argsort(f_new)
+        f_peak, half_width = f_new[order], hw_new[order]
 
     peaks = _SpectrumPeaks(seg, rate, min_snr_db)
     raw = _contradicted_fits(raw, peaks, T, notes)
@@ -1012,26 +1037,28 @@ def _analyse(
 def _contradicted_fits(
     raw: list[tuple], peaks: _SpectrumPeaks, T: float, notes: list[str]
 ) -> list[tuple]:
-    """Fits that the spectrum contradicts, replaced by the spectral peak.
+    """Fits that the spectrum contradicts, with their spread widened to the disagreement.
 
     For one exponentially decaying line the peak of the windowed spectrum lies at the line's
     frequency (the falling half-Hann window is a sum of three exponentials, and their
     Lorentzians add to a magnitude symmetric about it). An isolated line (no other within
-    two resolutions) whose fit lies further from that peak than three combined standard
-    deviations does not ring as one exponential (a sample's envelope, a pair too close to
-    resolve): the peak is what is heard, and the disagreement is its uncertainty."""
+    four resolutions, whose skirt would pull the peak) whose fit lies further from that peak
+    than two combined standard deviations does not ring as one exponential (a sample's
+    envelope, a pair too close to resolve, a room's response): the fit stays (on the
+    corpus it is the closer of the two more often), and its spread becomes the
+    disagreement."""
     out = []
     for r in raw:
         f, sd = r[0], r[1]
-        isolated = all(abs(q[0] - f) > 2.0 / T for q in raw if q is not r)
+        isolated = all(abs(q[0] - f) > 4.0 / T for q in raw if q is not r)
         line = peaks.line_near(f, 1.5 / T) if isolated and r[5] == "fit" else None
         if line is not None:
             gap = abs(line[0] - f)
             if gap > 2.0 * np.hypot(sd, line[1]):
-                out.append((line[0], max(line[1], gap), *line[2:]))
+                out.append((f, gap, *r[2:]))
                 notes.append(
                     f"the fit at {f:.2f} Hz lies {gap:.2g} Hz off the spectral peak (the ring "
-                    f"is not one exponential); reported the peak (+- {max(line[1], gap):.2g} Hz)"
+                    f"is not one exponential): its spread is widened to +- {gap:.2g} Hz"
                 )
                 continue
         out.append(r)
