@@ -840,21 +840,11 @@ def _find_partials(
                 "false partials at sums and multiples; record with less gain"
             )
     stop = _record_end(x, rate, start, end)
+    first = start  # where the record of the reported lines starts
     detect_args = (rate, fmin, fmax_eff, min_snr_db, min_prominence_db, dynamic_range_db)
     strikes_s = tuple(o / rate for o in onsets)
     N = _prev_smooth_length(max(stop - start, round(need_s * rate)))
     raw, notes = _analyse(x[start : start + N], detect_args, min_snr_db)
-    # Two lines closer than the record resolves: analyse a longer record when there is one.
-    gaps = _strong_gaps(raw)
-    if gaps.size and np.min(gaps) * N / rate < 2.0 and end - start > N:
-        longer = min(
-            end - start,
-            round(1.1 * 2.0 / max(np.min(gaps), 1e-9) * rate),
-            round(MAX_LONGER_S * rate),
-        )
-        if longer > N:
-            N = _prev_smooth_length(longer)
-            raw, notes = _analyse(x[start : start + N], detect_args, min_snr_db)
     # A room's own response to each partial rings close beside it and dies fast (its
     # reverberation time): once that has died away, a later start sees the bar's line alone.
     late = _room_settling(raw, rate)
@@ -879,6 +869,17 @@ def _find_partials(
                 f"reverberation beside the partials: analysed from {(start + late) / rate:.3f} s, "
                 "after the room's own response died away"
             )
+            first = start + late
+    # Two strong lines closer than the record resolves: analyse the band around each such
+    # pair over a longer record (the rest keep the short record's fits).
+    resolved = _resolve_close_pairs(x, start, first, end, N, raw, detect_args, min_snr_db)
+    if resolved is not None:
+        raw, bands, extra_notes, T_long = resolved
+        notes += extra_notes
+        names = ", ".join(f"{lo:.0f}-{hi:.0f} Hz" for lo, hi in bands)
+        warnings.append(f"close pairs: {names} analysed over {T_long:.2f} s")
+    else:
+        bands, T_long = [], N / rate
     T = N / rate
     warnings += notes
     if raw is None:
@@ -927,7 +928,8 @@ def _find_partials(
             )
     for p, q in pairwise(partials):
         gap = q.frequency_hz - p.frequency_hz
-        if gap * T < 2.0:
+        long = any(lo <= p.frequency_hz and q.frequency_hz <= hi for lo, hi in bands)
+        if gap * (T_long if long else T) < 2.0:
             warnings.append(
                 f"partials at {p.frequency_hz:.2f} and {q.frequency_hz:.2f} Hz are too close "
                 f"for this record; a recording of at least {2.0 / gap:.2f} s after the strike "
@@ -958,22 +960,73 @@ def _room_settling(raw: list[tuple] | None, rate: float) -> int:
     return round(min(3.0 * max(taus), MAX_LATE_START_S) * rate)
 
 
-def _strong_gaps(raw: list[tuple] | None) -> NDArray[np.float64]:
-    """Gaps (Hz) between neighbouring lines that are both within 30 dB of the strongest and
-    within 20 dB of each other, with decays within a factor 4: a pair worth a longer record
-    (a doublet), unlike a weak or short ripple beside a loud line (a room's reverberation)."""
+def _strong_pairs(raw: list[tuple] | None) -> list[tuple[tuple, tuple]]:
+    """Neighbouring lines that are both within 30 dB of the strongest and within 20 dB of
+    each other, with decays within a factor 4: a pair worth a longer record (a doublet),
+    unlike a weak or short ripple beside a loud line (a room's reverberation)."""
     if not raw:
-        return np.empty(0)
+        return []
     rows = sorted(raw, key=lambda r: r[0])
     top = max(r[2] for r in rows)
-    gaps = [
-        q[0] - p[0]
+    return [
+        (p, q)
         for p, q in pairwise(rows)
         if min(p[2], q[2]) >= top * 10 ** (-30 / 20)
         and min(p[2], q[2]) >= 0.1 * max(p[2], q[2])
         and min(p[3], q[3]) >= ROOM_DECAY_RATIO * max(p[3], q[3])  # not a room's response
     ]
-    return np.asarray(gaps)
+
+
+def _resolve_close_pairs(
+    x: NDArray[np.float64],
+    start: int,
+    first: int,
+    end: int,
+    N: int,
+    raw: list[tuple] | None,
+    detect_args: tuple,
+    min_snr_db: float,
+) -> tuple[list[tuple], list[tuple[float, float]], list[str], float] | None:
+    """Lines with the bands of close strong pairs re-analysed over a longer record.
+
+    A pair ``g`` Hz apart needs about ``2 / g`` s of record (up to ``MAX_LONGER_S``, and what
+    the strike offers after ``first``, where the reported lines' record starts); only the
+    band around each pair (ten resolutions of the short record beyond it) is analysed again,
+    so the cost follows the pairs, not the whole spectrum. Amplitudes are referred to
+    ``start``. None: no pair needs it, or the strike offers no longer record."""
+    rate, fmin, fmax_eff = detect_args[:3]
+    T = N / rate
+    close = [(p, q) for p, q in _strong_pairs(raw) if (q[0] - p[0]) * T < 2.0]
+    if raw is None or not close or end - first <= N:
+        return None
+    gap = min(q[0] - p[0] for p, q in close)
+    longer = min(end - first, round(1.1 * 2.0 / gap * rate), round(MAX_LONGER_S * rate))
+    if longer <= N:
+        return None
+    N_long = _prev_smooth_length(longer)
+    margin = 10.0 / T
+    bands: list[list[float]] = []
+    for p, q in close:
+        lo, hi = max(fmin, p[0] - margin), min(fmax_eff, q[0] + margin)
+        if bands and lo <= bands[-1][1]:
+            bands[-1][1] = hi
+        else:
+            bands.append([lo, hi])
+    out, notes, done = list(raw), [], []
+    for lo, hi in bands:
+        args = (rate, lo, hi, *detect_args[3:])
+        found, band_notes = _analyse(x[first : first + N_long], args, min_snr_db)
+        if not found:
+            continue
+        shift = first - start
+        found = [
+            (f, sd, a * np.exp(shift / (tau * rate)) if np.isfinite(tau) else a, tau, sdt, how)
+            for f, sd, a, tau, sdt, how in found
+        ]
+        out = [r for r in out if not lo <= r[0] <= hi] + found
+        notes += band_notes
+        done.append((lo, hi))
+    return (out, done, notes, N_long / rate) if done else None
 
 
 def _analyse(
