@@ -39,7 +39,7 @@ squares, with the fitted contributions of the other groups subtracted (two Gauss
 sweeps), so a loud neighbour does not bias a weak partial. The amplitudes ``Re C_k``,
 ``Im C_k`` and the background enter linearly: for given ``omega_k`` and ``log alpha_k`` they
 are the linear least-squares solution, and the solver (MINPACK's Levenberg-Marquardt through
-``scipy.optimize.least_squares``) sees only those 2K nonlinear parameters, with Kaufman's
+``scipy.optimize.leastsq``) sees only those 2K nonlinear parameters, with Kaufman's
 Jacobian of the projected residual (variable projection: Golub & Pereyra 1973; Kaufman 1975).
 Their bounds (a frequency near its detected peak, a decay between 1000 records and a line
 four times wider than its band) enter through ``theta = lo + (hi - lo)(1 + sin phi) / 2``
@@ -82,7 +82,7 @@ from itertools import pairwise
 import numpy as np
 from numpy.typing import ArrayLike, NDArray
 from scipy import fft as sp_fft
-from scipy.optimize import least_squares
+from scipy.optimize import leastsq
 from scipy.signal import find_peaks
 from threadpoolctl import threadpool_limits
 from tonewright.acoustics.pitch import ratio_to_cents
@@ -492,7 +492,7 @@ def _fit_group(
     amplitudes and the background are the linear least-squares solution, so the solver sees
     only the 2K nonlinear parameters, with Kaufman's (1975) Jacobian of the projected
     residual. The bounds enter through theta = lo + (hi - lo)(1 + sin phi) / 2 (James & Roos
-    1975), so MINPACK's Levenberg-Marquardt (``method="lm"``) needs none."""
+    1975), so MINPACK's Levenberg-Marquardt needs none."""
     K = omega0.size
     nb = m.size
     log_alpha_lo = np.log(1e-3 / N)  # tau up to 1000 records
@@ -536,18 +536,19 @@ def _fit_group(
         Jn -= U @ (U.T @ Jn)
         return Jn * (half * np.cos(phi))
 
-    sol = least_squares(
+    # MINPACK's lmder through its thin wrapper (``least_squares(method="lm")`` calls the same
+    # routine with more bookkeeping per evaluation); diag=None scales by the Jacobian's columns
+    phi = leastsq(
         residual,
         phi0,
-        jac=jacobian,
-        method="lm",
-        x_scale="jac",
+        Dfun=jacobian,
         xtol=1e-12,
         ftol=1e-12,
         gtol=1e-12,
-        max_nfev=MAX_FIT_EVALUATIONS,
-    )
-    theta = lo + half * (1.0 + np.sin(sol.x))
+        maxfev=MAX_FIT_EVALUATIONS,
+        full_output=True,  # reports a capped fit instead of warning: the caller judges it
+    )[0]
+    theta = lo + half * (1.0 + np.sin(phi))
     w, la = theta[:K], theta[K:]
     B, parts = _design(w, la, N, m)
     coef, _ = _linear_solve(B, D)
