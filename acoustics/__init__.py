@@ -4,6 +4,8 @@ Pure functions on arrays; nothing here reads files, prints or imports the applic
 
 - ``pitch``: cents, note names, hearing bandwidths, strike notes;
 - ``tap``: the partials of one recorded strike (``find_partials`` -> ``TapResult``);
+- ``decay``: a partial's T60 from its band's backward-integrated energy (no single
+  exponential assumed);
 - ``synth``: a mallet strike as a sum of decaying modes (``modal_strike``);
 - ``preview``: which modes a strike excites and how strongly (``preview_modes``), and the
   sound they make (``strike_sound``). It builds on ``tonewright.forward`` (modal masses of a

@@ -76,7 +76,7 @@ References
 
 from __future__ import annotations
 
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 from itertools import pairwise
 
 import numpy as np
@@ -85,6 +85,7 @@ from scipy import fft as sp_fft
 from scipy.optimize import leastsq
 from scipy.signal import find_peaks
 from threadpoolctl import threadpool_limits
+from tonewright.acoustics.decay import band_energy_decay, t60_from_edc
 from tonewright.acoustics.pitch import ratio_to_cents
 
 from tonewright.errors import InputError
@@ -140,6 +141,10 @@ class Partial:
     """``fit``: the decaying-sinusoid fit; ``peak``: the fit did not settle, so the frequency
     is the interpolated spectral peak (larger uncertainty, level from the peak height, decay
     from the line width: rough)."""
+    band_t60_s: float = float("nan")
+    """T60 from the backward-integrated energy of the partial's band (``acoustics.decay``:
+    not one exponential assumed; what a listener hears over the first 25 dB), NaN where the
+    ring does not fall 15 dB above the noise or the line is more than 40 dB down."""
 
     @property
     def t60_s(self) -> float:
@@ -919,6 +924,7 @@ def _find_partials(
         )
         for f, sd_f, a, tau, sd_tau, how in raw
     )
+    partials = _with_band_decays(partials, x, rate, onset, first, end)
     for p in partials:
         ring = 3.0 * p.decay_s if np.isfinite(p.decay_s) else T
         cycles = p.frequency_hz * min(T, ring)
@@ -937,6 +943,38 @@ def _find_partials(
                 "would separate them"
             )
     return TapResult(partials, tuple(warnings), onset / rate, T, strikes_s)
+
+
+BAND_DECAY_DB = 40.0  # band decays for the lines this close to the strongest
+
+
+def _with_band_decays(
+    partials: tuple[Partial, ...],
+    x: NDArray[np.float64],
+    rate: float,
+    onset: int,
+    first: int,
+    end: int,
+) -> tuple[Partial, ...]:
+    """Each strong line with the T60 of its band's energy from ``first`` to ``end``; the
+    band's noise from the pre-roll when there is one (20 ms up to 5 ms before the onset)."""
+    pre = onset - round(0.005 * rate)
+    noise = x[:pre] if pre >= round(0.02 * rate) else None
+    f = np.array([p.frequency_hz for p in partials])
+    out = []
+    for i, p in enumerate(partials):
+        if p.level_db < -BAND_DECAY_DB:
+            out.append(p)
+            continue
+        # lines closer than a record's resolution ring as one (a doublet beats in its band)
+        others = np.abs(np.delete(f, i) - p.frequency_hz)
+        others = others[others > 2.0]
+        neighbour = float(np.min(others)) if others.size else 100.0
+        t, edc_db, range_db = band_energy_decay(
+            x[first:end], rate, p.frequency_hz, min(neighbour, 100.0), noise
+        )
+        out.append(replace(p, band_t60_s=t60_from_edc(t, edc_db, range_db)[0]))
+    return tuple(out)
 
 
 ROOM_NEIGHBOUR_CENTS = 40.0  # a room's response to a partial lies this close to it ...

@@ -42,6 +42,8 @@ def _payload(report: TapReport, a4_hz: float = 440.0) -> dict:
                 "cents": round(hz_to_note(p.frequency_hz, a4_hz)[1], 3),
                 "level_db": round(p.level_db, 2),
                 "t60_s": _finite(round(float(t60_from_decay(p.decay_s)), 4)),
+                # from the band's backward-integrated energy: no single exponential assumed
+                "band_t60_s": _finite(round(p.band_t60_s, 4)),
                 "uncertainty_hz": _finite(float(f"{p.frequency_uncertainty_hz:.3g}")),
                 "mode": None if lab is None else lab.text,
                 "method": p.method,
@@ -69,7 +71,8 @@ def _payload(report: TapReport, a4_hz: float = 440.0) -> dict:
 
 def _table(report: TapReport, title: str, a4_hz: float = 440.0) -> Table:
     table = Table(title=title, box=box.SIMPLE_HEAD, title_justify="left")
-    for name in ("#", "Hz", "± Hz", "note", "cents", "level dB", "T60 s", "ratio", "mode"):
+    heads = ("#", "Hz", "± Hz", "note", "cents", "level dB", "T60 s", "band T60 s", "ratio", "mode")
+    for name in heads:
         table.add_column(
             name, justify="left" if name in ("note", "mode") else "right", no_wrap=name == "mode"
         )
@@ -90,6 +93,7 @@ def _table(report: TapReport, title: str, a4_hz: float = 440.0) -> Table:
             f"{off:+.1f}",
             f"{p.level_db:.1f}",
             f"{float(t60_from_decay(p.decay_s)):.2f}" if math.isfinite(p.decay_s) else "-",
+            f"{p.band_t60_s:.2f}" if math.isfinite(p.band_t60_s) else "-",
             f"{p.frequency_hz / f1:.3f}",
             mode.strip(),
         )
@@ -166,7 +170,8 @@ def listen(
             )
         console.print(
             f"notes in equal temperament at A4 = {a4:g} Hz; T60: seconds for a partial to fall "
-            "by 60 dB"
+            "by 60 dB (from the fit); band T60: the same from the energy in its band over the "
+            "first 25 dB, not assuming one exponential"
         )
     for w in report.warnings:
         typer.echo(f"warning: {w}", err=True)
