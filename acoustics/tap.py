@@ -616,6 +616,17 @@ def _groups(
     return sorted(out)
 
 
+def _record_spectrum(
+    seg: NDArray[np.float64], rate: float
+) -> tuple[NDArray[np.complex128], NDArray[np.float64]]:
+    """The record's DFT and the expected noise power in each bin (the median of ``|X|^2`` is
+    ln 2 times its mean for Gaussian noise)."""
+    X = sp_fft.rfft(seg)
+    f = np.arange(X.size) * rate / seg.size
+    power_db = 10.0 * np.log10(np.abs(X) ** 2 + 1e-300)
+    return X, 10.0 ** (_noise_floor_db(f, power_db) / 10.0) / np.log(2.0)
+
+
 def _refine(
     seg: NDArray[np.float64],
     rate: float,
@@ -623,15 +634,17 @@ def _refine(
     half_width_hz: NDArray[np.float64],
     min_snr_db: float,
     previous: list[_GroupFit] | None = None,
+    spectrum: tuple[NDArray[np.complex128], NDArray[np.float64]] | None = None,
 ) -> list[_GroupFit]:
     """Fit every detected peak, group by group; add components the residual still shows.
 
     With ``previous`` (the fits of an earlier round on the same record) only the new peaks
     are fitted: a previous group whose band overlaps a new peak's is fitted again together
     with it, from where it was; the others are kept as they are (a weak new line moves a
-    group it does not overlap by a small fraction of its uncertainty)."""
+    group it does not overlap by a small fraction of its uncertainty). ``spectrum``: the
+    record's ``_record_spectrum``, when it is already known."""
     N = seg.size
-    X = sp_fft.rfft(seg)
+    X, noise_power = _record_spectrum(seg, rate) if spectrum is None else spectrum
     m_all = np.arange(X.size, dtype=float)
     bins_per_hz = N / rate
     m_peak = f_peak * bins_per_hz
@@ -668,8 +681,6 @@ def _refine(
         bands.append(np.arange(a, b + 1))
         starts.append(start)
     # Expected noise power per bin: median of |X|^2 is ln 2 times its mean for Gaussian noise.
-    power_db = 10.0 * np.log10(np.abs(X) ** 2 + 1e-300)
-    noise_power = 10.0 ** (_noise_floor_db(m_all / bins_per_hz, power_db) / 10.0) / np.log(2.0)
     detect_ratio = 10.0 ** (min_snr_db / 10.0) * np.log(2.0)
 
     def data(gi: int, fits: list[_GroupFit | None]) -> NDArray[np.complex128]:
@@ -1052,9 +1063,11 @@ def _resolve_close_pairs(
         else:
             bands.append([lo, hi])
     out, notes, done = list(raw), [], []
+    seg = x[first : first + N_long]
+    spectrum = _record_spectrum(seg, rate)
     for lo, hi in bands:
         args = (rate, lo, hi, *detect_args[3:])
-        found, band_notes = _analyse(x[first : first + N_long], args, min_snr_db)
+        found, band_notes = _analyse(seg, args, min_snr_db, spectrum)
         if not found:
             continue
         shift = first - start
@@ -1069,10 +1082,14 @@ def _resolve_close_pairs(
 
 
 def _analyse(
-    seg: NDArray[np.float64], detect_args: tuple, min_snr_db: float
+    seg: NDArray[np.float64],
+    detect_args: tuple,
+    min_snr_db: float,
+    spectrum: tuple[NDArray[np.complex128], NDArray[np.float64]] | None = None,
 ) -> tuple[list[tuple] | None, list[str]]:
     """Detect, fit and search the residual of one record: (f, sd_f, amplitude at the
-    record's start, tau, sd_tau, method) per line (None: no peak at all), and notes."""
+    record's start, tau, sd_tau, method) per line (None: no peak at all), and notes.
+    ``spectrum``: the record's ``_record_spectrum``, when it is already known."""
     rate, fmin, fmax_eff = detect_args[:3]
     N = seg.size
     T = N / rate
@@ -1088,7 +1105,8 @@ def _analyse(
 
     fits: list[_GroupFit] | None = None
     for _round in range(MAX_ROUNDS):
-        fits = _refine(seg, rate, f_peak, half_width, min_snr_db, fits)
+        spectrum = spectrum or _record_spectrum(seg, rate)
+        fits = _refine(seg, rate, f_peak, half_width, min_snr_db, fits, spectrum)
         raw, dropped, weak = _accepted(fits, rate, fmin, fmax_eff)
         # A weak partial masked by a loud neighbour's skirt appears once the fitted
         # partials are subtracted: search the residual and refit with what it reveals.
