@@ -41,7 +41,14 @@ Discretisation
   ``forward.solid``; three rigid-body modes per symmetry class are dropped.
 
 Modes are sampled at Gauss points (quadrature weights as lumped masses) and named by
-``forward.classify``.
+``forward.classify``. Gauss points miss the faces, so where asked (``probes``) the vertical
+displacement on the top face is evaluated from the basis itself at s = 1 (``_top_face_w``),
+
+    w_k(x, y) = sum_ijk N_i(x) N_j(y) N_k(1) c_k[i, j, k, z],
+
+with the coefficients c_k of mode k mass-normalised over the whole bar (int_V rho |u_k|^2 dV
+= 1: ARPACK's M-normalised vectors of the half width, divided by sqrt(2)); the sound preview
+weighs a strike with them.
 """
 
 from __future__ import annotations

@@ -3,7 +3,8 @@
 A bar of constant width is solved by the model that certifies designs, the p-version 3D solid
 (``tonewright.fidelity.bar_solid_modes``, with its error estimate per mode); the beam
 model is the option ``model="beam"`` and the only model of tubes, strings and bars of varying
-width. Every result names its model.
+width. Every result names its model. Given probe points on the top face, each 3D mode also
+carries its mass-normalised vertical displacement there (the sound preview's strike weights).
 """
 
 from __future__ import annotations
