@@ -23,6 +23,15 @@ For a uniform free-free Euler-Bernoulli bar, every ``w_k`` normalised to ``int w
 Shape*, table 8-1, from memory), so a strike and a listener at one end give every bending mode
 the same ``a_k = 4 / (rho A L)``; the tests check this.
 
+With a 3D model's modes (``solid_weighted``), ``u_k`` mass-normalised (int_V rho |u_k|^2 dV
+= 1), the same superposition needs no modal mass and no beam kinematics:
+
+    a_k = w_k(s) w_k(l),    w_k the vertical (z) component of u_k on the top face,
+
+so the twist, the section's own deformation (anticlastic bending across the width), shear and
+rotary inertia come with the shapes. The decay keeps ``tau_k = 1 / (pi f_k eta)`` at the 3D
+frequency.
+
 Decays: ``tau_k = 1 / (pi f_k eta)`` from the material loss factor (``acoustics.synth``).
 
 Sound: each mode rings at ``|a_k P(f_k)|``, ``P`` the half-sine pulse spectrum of the
@@ -56,6 +65,7 @@ __all__ = [
     "excited_families",
     "modal_masses",
     "preview_modes",
+    "solid_weighted",
     "strike_sound",
 ]
 
@@ -152,6 +162,23 @@ def preview_modes(
             )
         )
     return tuple(out)
+
+
+def solid_weighted(
+    mode: PreviewMode, frequency_hz: float, w_strike: float, w_listen: float
+) -> PreviewMode:
+    """``mode`` as a 3D model gives it: at ``frequency_hz``, ``a_k = w_k(s) w_k(l)`` from the
+    mass-normalised vertical displacements (1/sqrt(kg)) under the strike and the ear, and the
+    decay ``tau = 1 / (pi f eta)`` moved to the new frequency (the same loss factor)."""
+    if not (np.isfinite(frequency_hz) and frequency_hz > 0):
+        raise InputError(f"frequency {frequency_hz!r} Hz: must be a positive number")
+    return PreviewMode(
+        family=mode.family,
+        order=mode.order,
+        frequency_hz=float(frequency_hz),
+        amplitude=float(w_strike) * float(w_listen),
+        decay_s=mode.decay_s * mode.frequency_hz / float(frequency_hz),
+    )
 
 
 @dataclass(frozen=True, eq=False)

@@ -149,7 +149,9 @@ def classify_modes(
 class ModeSet:
     """Free-free modes of a 2D or 3D model: ``f_hz`` (m,), ``modes`` classified, the ``mesh``,
     ``n_dof``, node ``coords`` and mass-normalised ``shapes`` (one per mode, node-wise
-    displacement components), ``status`` (0 ok, 1 warning) and ``message``."""
+    displacement components), ``status`` (0 ok, 1 warning) and ``message``; ``probe_w``
+    (modes, points), where asked, the mass-normalised vertical displacement at given points
+    of the top face."""
 
     f_hz: np.ndarray
     modes: tuple[ClassifiedMode, ...]
@@ -159,6 +161,7 @@ class ModeSet:
     shapes: np.ndarray = field(repr=False)
     status: int = 0
     message: str = "converged"
+    probe_w: np.ndarray | None = field(default=None, repr=False)
 
     def family_hz(self, name: str) -> np.ndarray:
         """Frequencies (Hz) of one family, in order."""

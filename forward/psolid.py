@@ -41,7 +41,14 @@ Discretisation
   ``forward.solid``; three rigid-body modes per symmetry class are dropped.
 
 Modes are sampled at Gauss points (quadrature weights as lumped masses) and named by
-``forward.classify``.
+``forward.classify``. Gauss points miss the faces, so where asked (``probes``) the vertical
+displacement on the top face is evaluated from the basis itself at s = 1 (``_top_face_w``),
+
+    w_k(x, y) = sum_ijk N_i(x) N_j(y) N_k(1) c_k[i, j, k, z],
+
+with the coefficients c_k of mode k mass-normalised over the whole bar (int_V rho |u_k|^2 dV
+= 1: ARPACK's M-normalised vectors of the half width, divided by sqrt(2)); the sound preview
+weighs a strike with them.
 """
 
 from __future__ import annotations
@@ -469,6 +476,47 @@ def _sample_matrix(axis: _Axis, q: int) -> tuple[np.ndarray, np.ndarray, np.ndar
     return np.concatenate(pts), np.concatenate(wts), E
 
 
+def _point_matrix(axis: _Axis, points: np.ndarray) -> np.ndarray:
+    """Values of every global function at physical ``points`` of the axis: (points, size).
+    A point on an element end belongs to the element on its left (both give the same value:
+    the basis is C0, and only the vertex function is nonzero there)."""
+    n_el = axis.ends.size - 1
+    e = np.clip(np.searchsorted(axis.ends, points, side="left") - 1, 0, n_el - 1)
+    a, b = axis.ends[e], axis.ends[e + 1]
+    B = c0_basis(axis.p, 2.0 * (points - a) / (b - a) - 1.0, 0)[0]  # (points, p + 1)
+    local = np.concatenate([[0, axis.p], np.arange(1, axis.p)])
+    E = np.zeros((points.size, axis.size))
+    np.put_along_axis(E, e[:, None] * axis.p + local[None, :], B, axis=1)
+    return E
+
+
+def _top_face_w(
+    x_axis: _Axis,
+    y_axis: _Axis,
+    z_axis: _Axis,
+    coef: np.ndarray,
+    parity: np.ndarray,
+    width: float,
+    points: np.ndarray,
+) -> np.ndarray:
+    """Vertical displacement w of every mode at ``points`` (n, 2) = (x, y) on the top face.
+
+    ``coef`` (modes, Nx, Ny, Nz, 3) holds one symmetry class's coefficients on the half
+    width 0 <= y <= width / 2 (the mid-width plane at its last y vertex). At s = 1 the map
+    z = t0 - h (1 - s) puts every point on the flat top face, so
+
+        w(x, y) = sum_ijk N_i(x) N_j(y') N_k(s = 1) c_ijk,z  * (1, or the class's parity of w
+                  where y > width / 2 and y' = width - y is its mirror image).
+    """
+    y = points[:, 1]
+    far = y > 0.5 * width
+    Ex = _point_matrix(x_axis, points[:, 0])
+    Ey = _point_matrix(y_axis, np.where(far, width - y, y))
+    Ez = _point_matrix(z_axis, np.array([1.0]))[0]
+    w = np.einsum("pi,pj,k,mijk->mp", Ex, Ey, Ez, coef[..., 2], optimize=True)
+    return w * np.where(far, parity[2], 1.0)
+
+
 _SYMMETRY = (
     ("symmetric", (1,), np.array([1.0, -1.0, 1.0])),
     ("antisymmetric", (0, 2), np.array([-1.0, 1.0, -1.0])),
@@ -513,6 +561,20 @@ def _depth_ends(nz: int, ratio: float = 0.15) -> np.ndarray:
     return np.concatenate([[0.0], ratio ** np.arange(nz - 1, 0, -1), [1.0]])
 
 
+def _checked_probes(probes: np.ndarray, length: float, width: float) -> np.ndarray:
+    points = np.asarray(probes, dtype=float)
+    if points.ndim != 2 or points.shape[1] != 2 or not np.all(np.isfinite(points)):
+        raise ValueError(f"probes of shape {points.shape}: give finite (x, y) pairs, shape (n, 2)")
+    slack = 1e-9 * max(length, width)
+    x, y = points[:, 0], points[:, 1]
+    if np.any((x < -slack) | (x > length + slack) | (y < -slack) | (y > width + slack)):
+        raise ValueError(
+            f"probes: every point must lie on the top face, 0 <= x <= {length!r} m and "
+            f"0 <= y <= {width!r} m"
+        )
+    return np.column_stack([np.clip(x, 0.0, length), np.clip(y, 0.0, width)])
+
+
 def _check(length: float, width: float, blank_thickness: float, h: np.ndarray) -> None:
     for name, value in (("length", length), ("width", width), ("blank_thickness", blank_thickness)):
         if not (np.isfinite(value) and value > 0):
@@ -533,6 +595,7 @@ def psolid_modes(
     mesh: PMesh | None = None,
     element_ends: np.ndarray | None = None,
     fmax_hz: float | None = None,
+    probes: np.ndarray | None = None,
 ) -> ModeSet:
     """Lowest ``count`` free-free flexible modes of an undercut bar, p-version hexahedra.
 
@@ -544,6 +607,9 @@ def psolid_modes(
     thickness. ``element_ends`` (m) adds element ends
     where the profile is less smooth than its corners show (e.g. where a cut's curvature
     jumps): p-convergence is exponential only where the solution is smooth inside elements.
+    ``probes`` (n, 2): points (x, y) on the top face (m, y across the width from 0 to
+    ``width``, as in ``coords``) where each mode's vertical displacement is evaluated exactly
+    from the basis, mass-normalised as ``shapes`` (``ModeSet.probe_w``, (modes, n)).
     """
     if not isinstance(material, Orthotropic):
         raise ValueError(f"material = {type(material).__name__}: must be an Orthotropic")
@@ -553,6 +619,8 @@ def psolid_modes(
         raise ValueError(f"fmax_hz = {fmax_hz!r}: must be a positive frequency or None")
     mesh = mesh or PMesh()
     _check(length, width, blank_thickness, np.asarray(thickness(np.linspace(0, length, 201))))
+    if probes is not None:
+        probes = _checked_probes(probes, length, width)
     ends, sharp = _length_ends(length, thickness, mesh.nx, element_ends, mesh.grade_corners)
     if sharp and mesh.grade_corners:
         mesh = replace(mesh, nz=max(mesh.nz, 2))
@@ -579,7 +647,7 @@ def psolid_modes(
     coords[..., 2] = (blank_thickness - h_s[:, None] * (1.0 - ss[None, :]))[:, None, :]
     masses = material.rho * (wx * h_s)[:, None, None] * wy[None, :, None] * ws[None, None, :]
 
-    f_parts, shape_parts, messages, n_dof = [], [], [], 0
+    f_parts, shape_parts, probe_parts, messages, n_dof = [], [], [], [], 0
     for _, fixed, parity in _SYMMETRY:
         held = np.zeros((Ny, Nz, 3), dtype=bool)
         held[-1, :, list(fixed)] = True  # the mid-width plane is the last y vertex
@@ -592,12 +660,15 @@ def psolid_modes(
         half = np.einsum("ai,bj,ck,mijkd->mabcd", Ex, Ey, Ez, coef, optimize=True)
         mirrored = half[:, :, ::-1] * parity
         shape_parts.append(np.concatenate([half, mirrored], axis=2))
+        if probes is not None:
+            probe_parts.append(_top_face_w(x_axis, y_axis, z_axis, coef, parity, width, probes))
         f_parts.append(f_hz)
         messages.append(message)
     f_all = np.concatenate(f_parts)
     order = np.argsort(f_all, kind="stable")
     order = order if fmax_hz is not None else order[:count]
     shapes = np.concatenate(shape_parts)[order]
+    probe_w = np.concatenate(probe_parts)[order] if probes is not None else None
     mirror = coords[:, ::-1].copy()
     mirror[..., 1] = width - mirror[..., 1]
     coords_full = np.concatenate([coords, mirror], axis=1)
@@ -613,6 +684,7 @@ def psolid_modes(
         shapes=shapes,
         status=1 if problems else 0,
         message="; ".join(problems) or "converged",
+        probe_w=probe_w,
     )
 
 
@@ -671,14 +743,16 @@ def psolid_convergence(
     element_ends: np.ndarray | None = None,
     fmax_hz: float | None = None,
     extrapolate: bool = True,
+    probes: np.ndarray | None = None,
 ) -> PSolidConvergence:
     """``psolid_modes`` on ``mesh`` and on ``mesh.lowered()``; the change per mode in cents.
     With ``fmax_hz`` every mode of ``mesh`` up to it (the lower spaces' up to 5 % above, their
     modes lying higher). With ``extrapolate`` (every degree >= 4, a profile without sharp
-    corners) a third run two degrees lower gives the sharper ``extrapolated_error``."""
+    corners) a third run two degrees lower gives the sharper ``extrapolated_error``.
+    ``probes``: top-face points for ``result.probe_w`` (``psolid_modes``)."""
     mesh = mesh or PMesh()
     bar = (length, width, blank_thickness, thickness, material)
-    result = psolid_modes(*bar, count, mesh, element_ends, fmax_hz)
+    result = psolid_modes(*bar, count, mesh, element_ends, fmax_hz, probes)
     top = None if fmax_hz is None else 1.05 * fmax_hz
     lower = psolid_modes(*bar, count + 4, mesh.lowered(), element_ends, top)
     f_low = match_modes(result.modes, lower.modes)

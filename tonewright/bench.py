@@ -33,6 +33,7 @@ from tonewright.acoustics.preview import (
     StrikeSound,
     excited_families,
     preview_modes,
+    solid_weighted,
     strike_sound,
 )
 from tonewright.audio import TapRecording, read_tap
@@ -940,7 +941,7 @@ def preview_sound(request: SoundRequest) -> SoundReport:
     if r.model not in ("auto", "beam"):
         raise InputError(f"--model {r.model!r}: choose auto or beam")
     if r.model == "auto" and isinstance(part, Bar):
-        modes, model = _certified_frequencies(part_file, base, modes, model)
+        modes, model = _certified_modes(part_file, base, modes, model, (x_s, y_s), (x_l, y_l))
     sound = strike_sound(modes, contact, r.rate, r.duration_s)
     title = part_file.title or r.file.stem
     return SoundReport(
@@ -948,20 +949,30 @@ def preview_sound(request: SoundRequest) -> SoundReport:
     )
 
 
-def _certified_frequencies(part_file, base, modes, beam_label: str):
-    """The preview's modes at the certifying 3D model's frequencies (same family and order),
-    the strike weights still from the beam's shapes; modes the 3D solve did not reach are
+def _certified_modes(
+    part_file: PartFile,
+    base: Path | None,
+    modes: tuple[PreviewMode, ...],
+    beam_label: str,
+    strike: tuple[float, float],
+    listen: tuple[float, float],
+) -> tuple[tuple[PreviewMode, ...], str]:
+    """The preview's modes as the certifying 3D model gives them (same family and order): its
+    frequencies, and strike weights from its own mass-normalised mode shapes under the strike
+    and the ear (``acoustics.preview.solid_weighted``); modes the 3D solve did not reach are
     left out. A bar the 3D model cannot take (varying width) keeps the beam's."""
-    solid = part_modes(part_file, base, count=4, model="auto")
+    solid = part_modes(part_file, base, count=4, model="auto", probes=(strike, listen))
     if solid.model == beam_label or not solid.model.startswith("3D"):
         return modes, beam_label
-    hz = {(m.family, m.order): m.frequency_hz for m in solid.modes}
-    kept = [
-        replace(m, frequency_hz=hz[(m.family, m.order)]) for m in modes if (m.family, m.order) in hz
-    ]
-    top = max(hz.values())
+    by_name = {(m.family, m.order): m for m in solid.modes}
+    kept = []
+    for m in modes:
+        s = by_name.get((m.family, m.order))
+        if s is not None:
+            kept.append(solid_weighted(m, s.frequency_hz, *s.probe_w))
+    top = max(m.frequency_hz for m in solid.modes)
     label = (
         f"{solid.model} frequencies up to {top:.0f} Hz (higher modes left out); "
-        "strike weights from the beam's mode shapes"
+        "strike weights from its mode shapes"
     )
     return tuple(kept), label

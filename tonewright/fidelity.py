@@ -219,10 +219,12 @@ def bar_solid_modes(
     fmax_hz: float,
     mesh: PMesh = PART_MESH,
     element_ends: np.ndarray | None = None,
+    probes: np.ndarray | None = None,
 ):
     """The p-version 3D modes of a bar up to ``fmax_hz`` with its error estimate (the
     same model one and two degrees lower): a ``PSolidConvergence``. Without ``element_ends`` the
-    profile is taken as stations (``part_element_ends``)."""
+    profile is taken as stations (``part_element_ends``). ``probes``: top-face points (x, y)
+    in the model's coordinates (y from 0 to ``width``) for ``result.probe_w``."""
     if element_ends is None:
         element_ends = part_element_ends(part, blank_thickness)
     try:
@@ -236,6 +238,7 @@ def bar_solid_modes(
             mesh=mesh,
             element_ends=element_ends,
             fmax_hz=fmax_hz,
+            probes=probes,
         )
     except ValueError as exc:
         raise InputError(f"3D model: {exc}") from None

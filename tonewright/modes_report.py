@@ -3,7 +3,8 @@
 A bar of constant width is solved by the model that certifies designs, the p-version 3D solid
 (``tonewright.fidelity.bar_solid_modes``, with its error estimate per mode); the beam
 model is the option ``model="beam"`` and the only model of tubes, strings and bars of varying
-width. Every result names its model.
+width. Every result names its model. Given probe points on the top face, each 3D mode also
+carries its mass-normalised vertical displacement there (the sound preview's strike weights).
 """
 
 from __future__ import annotations
@@ -43,6 +44,8 @@ class SolidMode:
     frequency_hz: float
     error_cents: float  # error estimate (NaN where the lower space has no such mode)
     nodes_m: tuple[float, ...]
+    # mass-normalised vertical displacement (1/sqrt(kg)) at the probes part_modes was given
+    probe_w: tuple[float, ...] = ()
 
 
 @dataclass(frozen=True)
@@ -74,23 +77,38 @@ def _beam_modes(part_file: PartFile, part, count: int, note: str = "") -> PartMo
     )
 
 
-def _solid_modes(part_file: PartFile, base: Path | None, part: Bar, count: int) -> PartModes:
+def _solid_modes(
+    part_file: PartFile,
+    base: Path | None,
+    part: Bar,
+    count: int,
+    probes: tuple[tuple[float, float], ...] = (),
+) -> PartModes:
     spec = part_file.material_spec(base)
     material = spec.to_solid(part_file.design.thickness_axis)
     # the modes up to a little past the beam's bending `count` (the 3D model's bending modes
     # lie at or below the beam's on an undercut bar, its torsion modes above)
     beam = solve(part, {"bending": count}, tol_cents=0.1, theory=part_file.model.theory)
     top = 1.3 * beam.frequency("bending", count)
-    conv = bar_solid_modes(part, part_file.bar.width, part_file.bar.thickness, material, top)
+    width = part_file.bar.width
+    # the 3D model's y runs 0 .. width across the bar; a probe's y is from the centre line
+    points = np.array([(x, 0.5 * width + y) for x, y in probes]) if probes else None
+    conv = bar_solid_modes(part, width, part_file.bar.thickness, material, top, probes=points)
     res = conv.result
     modes = []
     for k, m in enumerate(res.modes):
         if m.family == "other" or m.order > count:
             continue
         nodes = top_face_nodes(res.coords, res.shapes[k]) if m.family == "bending" else []
+        w = tuple(float(v) for v in res.probe_w[k]) if points is not None else ()
         modes.append(
             SolidMode(
-                m.family, m.order, float(m.f_hz), abs(float(conv.error_cents[k])), tuple(nodes)
+                m.family,
+                m.order,
+                float(m.f_hz),
+                abs(float(conv.error_cents[k])),
+                tuple(nodes),
+                w,
             )
         )
     errors = [m.error_cents for m in modes if np.isfinite(m.error_cents)]
@@ -104,10 +122,17 @@ def _solid_modes(part_file: PartFile, base: Path | None, part: Bar, count: int) 
 
 
 def part_modes(
-    part_file: PartFile, base: Path | None, count: int, model: str = "auto"
+    part_file: PartFile,
+    base: Path | None,
+    count: int,
+    model: str = "auto",
+    probes: tuple[tuple[float, float], ...] = (),
 ) -> PartModes:
     """Modes of a validated part file. ``model``: ``auto`` (the certifying 3D model for a bar
-    of constant width, else the beam), ``solid`` (3D, bars only) or ``beam``."""
+    of constant width, else the beam), ``solid`` (3D, bars only) or ``beam``. ``probes``:
+    points (x, y) in metres on the top face, y from the centre line; each 3D mode then
+    carries its mass-normalised vertical displacement there (``SolidMode.probe_w``); the
+    beam's modes ignore them."""
     if model not in MODELS:
         raise InputError(f"--model {model!r}: choose auto, solid or beam")
     part = part_file.to_part(base)
@@ -123,7 +148,7 @@ def part_modes(
         if model == "solid":
             raise
         return _beam_modes(part_file, part, count, "the bar's width varies: the 3D model needs one")
-    return _solid_modes(part_file, base, part, count)
+    return _solid_modes(part_file, base, part, count, probes)
 
 
 @dataclass(frozen=True, eq=False)

@@ -117,8 +117,8 @@ def register(app: typer.Typer) -> None:
         model: Annotated[
             str,
             typer.Option(
-                help="auto: a bar rings at the certifying 3D model's frequencies; beam: the "
-                "beam model's (fast)."
+                help="auto: a bar rings at the certifying 3D model's frequencies, struck as "
+                "its mode shapes say; beam: the beam model's (fast)."
             ),
         ] = "auto",
     ) -> None:
