@@ -443,7 +443,7 @@ def _design(
     log_alpha: NDArray[np.float64],
     N: int,
     m: NDArray[np.float64],
-) -> tuple[NDArray[np.complex128], list[tuple]]:
+) -> tuple[NDArray[np.complex128], tuple]:
     """Linear basis (bins x (2K + 4)) and the pieces needed for the nonlinear derivatives:
     ``(alpha, G, dG, Gc, dGc)``, one row per partial for ``u`` and for ``conj(u)``."""
     K = omega.size
