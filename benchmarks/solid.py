@@ -2,7 +2,7 @@
 and a converged reference, and the time of a 3D-certified design, in one run.
 
 Run from the repository root: ``python benchmarks/solid.py`` (``--quick`` skips the 27-node
-runs, ``--no-design`` the design timings).
+runs, ``--no-design`` the design timings, ``--case trapezoid`` runs one bar).
 
 Forward solves (bending 1-4, torsion 1-3, lateral 1-2; errors in cents against the same
 p-version model at degrees (10, 8, 7) on the same elements, with three geometric layers at
@@ -193,12 +193,17 @@ def main() -> None:
     parser.add_argument("--quick", action="store_true", help="skip the 27-node runs")
     parser.add_argument("--no-design", action="store_true", help="skip the design timings")
     parser.add_argument("--design-only", action="store_true", help="only the design timings")
+    parser.add_argument(
+        "--case", choices=("arch", "trapezoid", "demo"), action="append", help="only these bars"
+    )
     args = parser.parse_args()
     # one BLAS thread, as the command line runs (tonewright.cli_support.guarded): small dense
     # eigenproblems oversubscribe a shared machine otherwise
     with threadpool_limits(limits=1, user_api="blas"):
         if not args.design_only:
             for name, make in (("arch", _arch), ("trapezoid", _trapezoid), ("demo", _demo)):
+                if args.case and name not in args.case:
+                    continue
                 bar, material, kinks = make()
                 forward_report(name, bar, material, kinks, args.quick)
         if not args.no_design:
