@@ -10,7 +10,8 @@ discretised with few, large hexahedra of high degree instead of many small ones.
 Discretisation
 --------------
 - Elements: ``nx`` along the length, with the profile's strongest corners among the element
-  ends (``forward.geometry.strongest_corners``); ``ny`` across *half* the width (mirror symmetry
+  ends (``forward.geometry.strongest_corners``) and a geometric mesh toward each re-entrant
+  corner (``_length_ends``); ``ny`` across *half* the width (mirror symmetry
   about the mid-width plane, solved twice as in ``forward.solid``); ``nz`` through the thickness.
 - Shape functions: tensor products a(xi) b(eta) c(zeta) of the hierarchical integrated-Legendre
   C0 functions of ``forward.basis`` (Szabo & Babuska (1991), *Finite Element Analysis*, ch. 3
@@ -95,6 +96,10 @@ class PMesh:
     pz: int = 5
     grade_corners: bool = True  # small elements at sharp corners of the profile, nz >= 2
     bottom_layer: float = 0.15  # with nz >= 2: the bottom element's share of the thickness
+    # with grade_corners: geometric layers (ratio CORNER_RATIO) on each side of a re-entrant
+    # corner, and py, pz raised by corner_raise where the profile has one
+    corner_layers: int = 2
+    corner_raise: int = 0
 
     def __post_init__(self) -> None:
         for name in ("nx", "ny", "nz"):
@@ -105,6 +110,10 @@ class PMesh:
             value = getattr(self, name)
             if not isinstance(value, int | np.integer) or isinstance(value, bool) or value < 2:
                 raise ValueError(f"mesh {name} = {value!r}: must be a whole number >= 2")
+        for name in ("corner_layers", "corner_raise"):
+            value = getattr(self, name)
+            if not isinstance(value, int | np.integer) or isinstance(value, bool) or value < 0:
+                raise ValueError(f"mesh {name} = {value!r}: must be a whole number >= 0")
         if not 0.0 < self.bottom_layer < 1.0:
             raise ValueError(f"mesh bottom_layer = {self.bottom_layer!r}: allowed 0 < share < 1")
 
@@ -523,35 +532,66 @@ _SYMMETRY = (
 )
 
 
-def _length_ends(
-    length: float, thickness: Field, nx: int, extra: np.ndarray | None, grade: bool
-) -> tuple[np.ndarray, bool]:
-    """Element ends along x and whether the profile has sharp corners.
+CORNER_RATIO = 0.15  # geometric grading toward a re-entrant corner (Szabo & Babuska 1991, ch. 14)
 
-    Ends: ``nx`` equal elements, the profile's corners, ``extra``; next to every sharp corner
-    (a change of slope over 0.05, about 3 degrees) a small element a fifth of the equal size
-    or of the distance to the next corner, whichever is less
-    (geometric grading, Szabo & Babuska 1991, ch. 14: the corner's stress singularity is then
-    resolved by the degree instead of slowing the whole bar to an algebraic rate)."""
+
+@dataclass(frozen=True)
+class _LengthEnds:
+    """Element ends along x; whether the profile has sharp corners, and re-entrant ones."""
+
+    ends: np.ndarray
+    sharp: bool
+    reentrant: bool
+
+
+def _length_ends(
+    length: float, thickness: Field, nx: int, extra: np.ndarray | None, layers: int
+) -> _LengthEnds:
+    """Element ends along x: ``nx`` equal elements, the profile's corners, ``extra``, and
+    ``layers`` geometric layers on each side of every re-entrant corner.
+
+    A sharp corner is a change of slope over 0.05 (about 3 degrees). Where the thickness's
+    slope rises (the cut's bottom turns toward the flat: a re-entrant corner of the solid)
+    the stress is singular (Williams 1952, J. Appl. Mech. 19, 526-528), and ends at
+    c +- D r^j, j = 1 .. ``layers``, r = ``CORNER_RATIO``, D the equal element size or the
+    distance to the next corner, whichever is less, let the degree resolve it instead of
+    slowing the whole bar to an algebraic rate (geometric mesh, Szabo & Babuska 1991,
+    *Finite Element Analysis*, ch. 14). Convex corners are element ends only: their solution
+    is smoother, and on the straight-taper bar of benchmarks/solid.py a layer on each side of
+    them moved no wanted mode by more than 0.02 cent, for four more elements; a third layer
+    at the re-entrant corners moved none by 0.002. An equal or ``extra`` end closer than D / 2
+    to a graded corner is dropped (it would cut a sliver beside the graded layers); the
+    corners and their layers are never dropped."""
     points = np.asarray(thickness.breakpoints, dtype=float)
     corners = strongest_corners((thickness,), points, length, 16)
     eps = 1e-6 * length
     slope_left = (thickness(corners) - thickness(corners - eps)) / eps
     slope_right = (thickness(corners + eps) - thickness(corners)) / eps
     inside = (corners > eps) & (corners < length - eps)
-    sharp = corners[inside & (np.abs(slope_right - slope_left) > 0.05)]
+    jump = slope_right - slope_left
+    sharp = inside & (np.abs(jump) > 0.05)
+    graded = corners[sharp & (jump > 0)] if layers else np.zeros(0)
     size = length / nx
     others = np.concatenate([[0.0], corners[inside], [length]])
-    gap = np.array([np.min(np.abs(others[np.abs(others - c) > eps] - c)) for c in sharp])
-    delta = 0.2 * np.minimum(size, gap) if sharp.size and grade else np.zeros(0)
-    grading = np.concatenate([sharp - delta, sharp + delta]) if delta.size else delta
+    gap = np.array([np.min(np.abs(others[np.abs(others - c) > eps] - c)) for c in graded])
+    reach = np.minimum(size, gap)  # D per graded corner
+    steps = CORNER_RATIO ** np.arange(1, layers + 1)
+    offsets = (reach[:, None] * steps[None, :]).ravel()
+    centres = np.repeat(graded, layers)
+    fixed = np.concatenate([[0.0, length], corners[inside], centres - offsets, centres + offsets])
+    fixed = np.unique(fixed[(fixed >= 0.0) & (fixed <= length)])
+    fixed = fixed[np.concatenate([[True], np.diff(fixed) > eps])]
     added = np.asarray(extra if extra is not None else [], dtype=float)
-    inner = np.concatenate([corners, grading, added])
-    uniform = np.linspace(0.0, length, nx + 1)
-    ends = np.unique(np.concatenate([uniform, inner[(inner > 0) & (inner < length)]]))
-    ends = ends[np.concatenate([[True], np.diff(ends) > 1e-3 * size])]
-    ends[-1] = length
-    return ends, bool(sharp.size)
+    plain = np.concatenate([np.linspace(0.0, length, nx + 1), added])
+    plain = plain[(plain > 0.0) & (plain < length)]
+    if graded.size:
+        distance = np.abs(plain[:, None] - graded[None, :])
+        plain = plain[np.all(distance >= 0.5 * reach[None, :], axis=1)]
+    near = np.min(np.abs(plain[:, None] - fixed[None, :]), axis=1) if plain.size else plain
+    plain = np.unique(plain[near > 1e-3 * size])
+    plain = plain[np.concatenate([[True], np.diff(plain) > 1e-3 * size])] if plain.size else plain
+    ends = np.unique(np.concatenate([fixed, plain]))
+    return _LengthEnds(ends, bool(np.any(sharp)), bool(graded.size))
 
 
 def _depth_ends(nz: int, ratio: float = 0.15) -> np.ndarray:
@@ -603,8 +643,10 @@ def psolid_modes(
     ``blank_thickness``; ``count`` modes are computed in each symmetry class and the lowest
     ``count`` of both returned, classified by family; with ``fmax_hz`` every mode up to that
     frequency (``count`` is then the first batch per class). With ``mesh.grade_corners`` a profile
-    with sharp corners gets small elements next to them and two graded elements through the
-    thickness. ``element_ends`` (m) adds element ends
+    with sharp corners gets two graded elements through the thickness, and its re-entrant
+    corners ``mesh.corner_layers`` geometric layers of elements on each side and
+    ``mesh.corner_raise`` more degrees in y and z (``_length_ends``). ``element_ends`` (m) adds
+    element ends
     where the profile is less smooth than its corners show (e.g. where a cut's curvature
     jumps): p-convergence is exponential only where the solution is smooth inside elements.
     ``probes`` (n, 2): points (x, y) on the top face (m, y across the width from 0 to
@@ -621,9 +663,14 @@ def psolid_modes(
     _check(length, width, blank_thickness, np.asarray(thickness(np.linspace(0, length, 201))))
     if probes is not None:
         probes = _checked_probes(probes, length, width)
-    ends, sharp = _length_ends(length, thickness, mesh.nx, element_ends, mesh.grade_corners)
-    if sharp and mesh.grade_corners:
+    layers = mesh.corner_layers if mesh.grade_corners else 0
+    along = _length_ends(length, thickness, mesh.nx, element_ends, layers)
+    ends = along.ends
+    if along.sharp and mesh.grade_corners:
         mesh = replace(mesh, nz=max(mesh.nz, 2))
+    if along.reentrant and mesh.corner_raise:
+        raise_by = mesh.corner_raise
+        mesh = replace(mesh, py=mesh.py + raise_by, pz=mesh.pz + raise_by, corner_raise=0)
     x_axis = _Axis(ends, mesh.px)
     y_axis = _Axis(np.linspace(0.0, 0.5 * width, mesh.ny + 1), mesh.py)
     z_axis = _Axis(_depth_ends(mesh.nz, mesh.bottom_layer), mesh.pz)
@@ -760,7 +807,7 @@ def psolid_convergence(
     error = nested
     # at sharp corners of the cut the rate is algebraic, not exponential, and the
     # extrapolation measured half the true error (tests/test_psolid.py): keep the nested bound
-    sharp = _length_ends(length, thickness, mesh.nx, element_ends, True)[1]
+    sharp = _length_ends(length, thickness, mesh.nx, element_ends, 0).sharp
     if extrapolate and not sharp and min(mesh.px, mesh.py, mesh.pz) >= 4:
         top2 = None if fmax_hz is None else 1.1 * fmax_hz
         lowest = psolid_modes(*bar, count + 6, mesh.lowered().lowered(), element_ends, top2)

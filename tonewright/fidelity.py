@@ -15,9 +15,12 @@ The 2D and 3D models carry no holes and need a constant width.
 The 3D certifier's mesh: one element between neighbouring kinks of the design's cut (the
 knots of a spline, the ends of the cut, the edges of steps), split so that none is longer than
 an eighth of the bar, with degrees (5, 6, 5) along, across half the width and through the
-thickness. On the demo bar and the benchmark bars every wanted mode (bending 1-4, torsion
-1-3, lateral 1-2) is then within 0.1 cent of a degree (10, 8, 7) reference
-(``benchmarks/solid.py``; ``tests/test_psolid.py``).
+thickness. Where the cut has re-entrant corners (straight tapers meeting a flat) the model
+adds two geometric layers of elements on each side of each corner, a second element through
+the thickness, and one degree across the width and through the thickness. On the demo bar and
+the benchmark bars every wanted mode (bending 1-4, torsion 1-3, lateral 1-2) is then within 0.1
+cent of a converged reference (``benchmarks/solid.py``; ``tests/test_psolid.py``; for the
+straight-taper bar checked against scikit-fem, ``tests/test_fidelity.py``).
 """
 
 from __future__ import annotations
@@ -61,8 +64,9 @@ __all__ = [
 ]
 
 FIDELITIES = ("beam", "plane", "solid")
-# the design loop's 3D model: elements between the cut's kinks (certifier_ends)
-CERTIFY_MESH = PMesh(nx=1, px=5, py=6, pz=5)
+# the design loop's 3D model: elements between the cut's kinks (certifier_ends); at a cut's
+# re-entrant corners one degree more across the width and through the thickness
+CERTIFY_MESH = PMesh(nx=1, px=5, py=6, pz=5, corner_raise=1)
 # a part file's profile is stations (no kinks known): elements from the cut's edges
 # (part_element_ends), one degree more along x
 PART_MESH = PMesh(nx=1, px=6, py=6, pz=5)
