@@ -37,9 +37,10 @@ Discretisation
 - Eigen-solution: unknowns ordered x-layer by x-layer; K - sigma M is factored by condensing
   each x-element's interior functions (dense Cholesky per element) onto the vertex layers,
   whose block-tridiagonal Schur complement gets a block Cholesky factor
-  (``_CondensedCholesky``, ``_BlockTridiagonalCholesky``). That solve drives ARPACK's
-  shift-invert Lanczos (``scipy.sparse.linalg.eigsh``) with a small negative shift, as in
-  ``forward.solid``; three rigid-body modes per symmetry class are dropped.
+  (``_CondensedCholesky``, ``_BlockTridiagonalCholesky``). That solve, applied to blocks of
+  vectors at matrix-matrix speed, drives a block shift-invert Krylov iteration
+  (``forward.blockeig``) with a small negative shift, as in ``forward.solid``; three rigid-body
+  modes per symmetry class are dropped.
 
 Modes are sampled at Gauss points (quadrature weights as lumped masses) and named by
 ``forward.classify``. Gauss points miss the faces, so where asked (``probes``) the vertical
@@ -48,7 +49,7 @@ displacement on the top face is evaluated from the basis itself at s = 1 (``_top
     w_k(x, y) = sum_ijk N_i(x) N_j(y) N_k(1) c_k[i, j, k, z],
 
 with the coefficients c_k of mode k mass-normalised over the whole bar (int_V rho |u_k|^2 dV
-= 1: ARPACK's M-normalised vectors of the half width, divided by sqrt(2)); the sound preview
+= 1: the solver's M-normalised vectors of the half width, divided by sqrt(2)); the sound preview
 weighs a strike with them.
 """
 
@@ -58,10 +59,10 @@ from dataclasses import dataclass, replace
 
 import numpy as np
 from scipy.linalg import solve_triangular
-from scipy.linalg.lapack import dpotrf, dpotri
-from scipy.sparse.linalg import LinearOperator, eigsh
+from scipy.linalg.lapack import dpotrf
 from tonewright.acoustics.pitch import cents
 from tonewright.forward.basis import c0_basis, gauss_legendre
+from tonewright.forward.blockeig import shift_invert_eigs
 from tonewright.forward.classify import ModeSet, classify_modes
 from tonewright.forward.geometry import Field, strongest_corners
 from tonewright.forward.orthotropic import Orthotropic, bar_axes, stiffness_matrix
@@ -346,14 +347,12 @@ class _BlockTridiagonalCholesky:
                 C = solve_triangular(self.L[-1], B.T, lower=True, check_finite=False).T
                 D -= C @ C.T
                 self.C.append(C)
-            L, info = dpotrf(D, lower=1, clean=1)
-            if info:
-                raise np.linalg.LinAlgError("shifted stiffness is not positive definite")
-            self.L.append(L)
+            self.L.append(_cholesky(D))
 
     def solve(self, b: np.ndarray) -> np.ndarray:
+        """(A^-1 b) for b of shape (n m, r)."""
         m, n = self.m, self.n
-        y = b.reshape(n, m).copy()
+        y = b.reshape(n, m, -1).copy()
         for k in range(n):
             if k:
                 y[k] -= self.C[k] @ y[k - 1]
@@ -362,17 +361,27 @@ class _BlockTridiagonalCholesky:
             if k < n - 1:
                 y[k] -= self.C[k + 1].T @ y[k + 1]
             y[k] = solve_triangular(self.L[k], y[k], lower=True, trans="T", check_finite=False)
-        return y.ravel()
+        return y.reshape(n * m, -1)
+
+
+def _cholesky(A: np.ndarray) -> np.ndarray:
+    L, info = dpotrf(A, lower=1, clean=1, overwrite_a=1)
+    if info:
+        raise np.linalg.LinAlgError("shifted stiffness is not positive definite")
+    return L
 
 
 class _CondensedCholesky:
     """Direct solver for sum_t X[t] (x) S[t] (symmetric positive definite) by condensation.
 
     The interior functions of an x-element couple only to each other and to the element's two
-    vertex functions, so eliminating them element by element (dense Cholesky of each interior
-    block) leaves the Schur complement on the vertex layers, a small block-tridiagonal matrix
-    factored densely. This is exact Gaussian elimination in a nested-dissection order; it costs
-    about n_e ((p - 1) m)^3 / 3 against n (p m)^2 for a banded factor.
+    vertex functions, so eliminating them element by element (dense Cholesky L_e L_e^T of each
+    interior block A_ii, and C_e = L_e^-1 A_iv) leaves the Schur complement
+    A_vv - sum_e C_e^T C_e on the vertex layers, a small block-tridiagonal matrix factored by
+    blocks. This is exact Gaussian elimination in a nested-dissection order; it costs about
+    n_e ((p - 1) m)^3 / 3 against n (p m)^2 for a banded factor. Solves take blocks of
+    right-hand sides: triangular solves and products with many columns run at matrix-matrix
+    speed.
     """
 
     def __init__(self, X: np.ndarray, S: np.ndarray, p: int) -> None:
@@ -381,45 +390,43 @@ class _CondensedCholesky:
         self.n_el = (X.shape[1] - 1) // p
         vertices = np.arange(self.n_el + 1) * p
         schur = _kron_block(X, S, vertices, vertices)
-        inverses, solved = [], []
+        self.L, self.C = [], []
         for e in range(self.n_el):
             inner = e * p + np.arange(1, p)
-            A_ii = _kron_block(X, S, inner, inner)
-            A_iv = _kron_block(X, S, inner, vertices[e : e + 2])
-            # explicit inverse from the Cholesky factor: each solve is then one matrix product
-            # over all elements at once, memory-bound and several times faster than two
-            # triangular solves per element
-            L, info = dpotrf(A_ii, lower=1, clean=1)
-            if info:
-                raise np.linalg.LinAlgError("shifted stiffness is not positive definite")
-            inv, info = dpotri(L, lower=1)
-            inv = np.tril(inv) + np.tril(inv, -1).T
-            W = inv @ A_iv  # A_ii^-1 A_iv
+            L = _cholesky(_kron_block(X, S, inner, inner))
+            C = solve_triangular(
+                L, _kron_block(X, S, inner, vertices[e : e + 2]), lower=True, check_finite=False
+            )
             v = slice(e * m, (e + 2) * m)
-            schur[v, v] -= A_iv.T @ W
-            inverses.append(inv)
-            solved.append(W)
-        self.inverses = np.stack(inverses)  # (n_el, (p-1) m, (p-1) m)
-        self.solved = np.stack(solved)  # (n_el, (p-1) m, 2 m)
+            schur[v, v] -= C.T @ C
+            self.L.append(L)
+            self.C.append(C)
         self.schur = _BlockTridiagonalCholesky(schur, m)
 
     def solve(self, b: np.ndarray) -> np.ndarray:
+        """(A^-1 b) for b of shape (n,) or (n, r)."""
         p, m, n_el = self.p, self.m, self.n_el
-        B = b.reshape(-1, m)
-        inner = B[:-1].reshape(n_el, p, m)[:, 1:].reshape(n_el, -1)  # (n_el, (p-1) m)
-        y = np.matmul(self.inverses, inner[:, :, None])[:, :, 0]
-        # right-hand side of the vertex layers: b_v - A_vi A_ii^-1 b_i, with A_vi A_ii^-1 = W^T
-        rhs_v = B[::p].ravel().copy()
-        corr = np.matmul(inner[:, None, :], self.solved)[:, 0]  # (n_el, 2 m)
+        B = b.reshape(-1, m, b.shape[1] if b.ndim == 2 else 1)
+        r = B.shape[2]
+        # z_e = L_e^-1 b_i; vertex right-hand side b_v - sum_e C_e^T z_e
+        z = []
+        rhs_v = B[::p].reshape(-1, r).copy()
         for e in range(n_el):
-            rhs_v[e * m : (e + 2) * m] -= corr[e]
-        x_v = self.schur.solve(rhs_v).reshape(-1, m)
-        pairs = np.concatenate([x_v[:-1], x_v[1:]], axis=1)  # (n_el, 2 m)
-        x_i = y - np.matmul(self.solved, pairs[:, :, None])[:, :, 0]
-        x = np.empty((n_el, p, m))
-        x[:, 0] = x_v[:-1]
-        x[:, 1:] = x_i.reshape(n_el, p - 1, m)
-        return np.concatenate([x.reshape(-1, m), x_v[-1:]]).ravel()
+            b_i = B[e * p + 1 : (e + 1) * p].reshape(-1, r)
+            z_e = solve_triangular(self.L[e], b_i, lower=True, check_finite=False)
+            rhs_v[e * m : (e + 2) * m] -= self.C[e].T @ z_e
+            z.append(z_e)
+        x_v = self.schur.solve(rhs_v).reshape(-1, m, r)
+        x = np.empty_like(B)
+        x[::p] = x_v
+        # x_i = L_e^-T (z_e - C_e x_v)
+        for e in range(n_el):
+            pair = x_v[e : e + 2].reshape(-1, r)
+            x_i = solve_triangular(
+                self.L[e], z[e] - self.C[e] @ pair, lower=True, trans="T", check_finite=False
+            )
+            x[e * p + 1 : (e + 1) * p] = x_i.reshape(p - 1, m, r)
+        return x.reshape(b.shape)
 
 
 def _free_modes(
@@ -430,27 +437,27 @@ def _free_modes(
     K - sigma M is reused)."""
     n_x, m = pencil.M_x.shape[0], pencil.M_s.shape[0]
     n = n_x * m
-    with _single_threaded_blas():
-        solver = _CondensedCholesky(*pencil.shifted(sigma), p)
-    OPinv = LinearOperator((n, n), matvec=solver.solve, dtype=float)
     M_x, M_s = pencil.M_x, pencil.M_s
-    M_op = LinearOperator(
-        (n, n), matvec=lambda v: (M_x @ v.reshape(n_x, m) @ M_s.T).ravel(), dtype=float
-    )
-    K_op = LinearOperator((n, n), matvec=lambda v: v, dtype=float)  # unused in shift-invert
+
+    def mass(V: np.ndarray) -> np.ndarray:
+        r = V.shape[1]
+        along = (M_x @ V.reshape(n_x, m * r)).reshape(n_x, m, r)
+        return np.matmul(M_s, along).reshape(n, r)
+
     k = min(count + 3, n - 2)
     message = "converged"
-    while True:
-        with _single_threaded_blas():
-            lam, vec = eigsh(K_op, k=k, M=M_op, sigma=sigma, which="LM", OPinv=OPinv)
-        order = np.argsort(lam)
-        lam, vec = lam[order], vec[:, order]
-        if fmax_hz is None or np.sqrt(max(lam[-1], 0.0)) / (2.0 * np.pi) > fmax_hz:
-            break
-        if k >= min(_MAX_MODES, n - 2):
-            message = f"stopped at {k - 3} modes, all below fmax_hz = {fmax_hz:g}"
-            break
-        k = min(2 * k, _MAX_MODES, n - 2)
+    with _single_threaded_blas():
+        solver = _CondensedCholesky(*pencil.shifted(sigma), p)
+        while True:
+            lam, vec, converged = shift_invert_eigs(solver.solve, mass, n, k, sigma)
+            if not converged:
+                message = "the eigen-solver did not converge; results are approximate"
+            if fmax_hz is None or np.sqrt(max(lam[-1], 0.0)) / (2.0 * np.pi) > fmax_hz:
+                break
+            if k >= min(_MAX_MODES, n - 2):
+                message = f"stopped at {k - 3} modes, all below fmax_hz = {fmax_hz:g}"
+                break
+            k = min(2 * k, _MAX_MODES, n - 2)
     # a rigid rotation lies exactly in the space only where h(x) is a polynomial of degree
     # <= px inside each element; a profile given as stations (piecewise linear, many kinks
     # per element) leaves it a little stiff, e.g. 4e-5 of the first flexible eigenvalue (a

@@ -1,0 +1,61 @@
+"""Block shift-invert eigen-solver against dense LAPACK (a different method) and closed forms."""
+
+import numpy as np
+import pytest
+from scipy.linalg import cho_factor, cho_solve, eigh
+from tonewright.forward.blockeig import shift_invert_eigs
+
+
+def _solver(K: np.ndarray, M: np.ndarray, sigma: float):
+    factor = cho_factor(K - sigma * M)
+    return lambda B: cho_solve(factor, B), lambda B: M @ B
+
+
+def _string_pencil(n: int) -> tuple[np.ndarray, np.ndarray]:
+    """Linear finite elements of a fixed-fixed string, unit length, tension and density."""
+    h = 1.0 / (n + 1)
+    K = (2.0 * np.eye(n) - np.eye(n, k=1) - np.eye(n, k=-1)) / h
+    M = h / 6.0 * (4.0 * np.eye(n) + np.eye(n, k=1) + np.eye(n, k=-1))
+    return K, M
+
+
+def test_string_eigenvalues_match_the_closed_form_of_linear_elements():
+    # linear elements on a uniform mesh: lambda_j = (6 / h^2) (1 - cos t) / (2 + cos t),
+    # t = j pi h (Strang & Fix 1973, An Analysis of the Finite Element Method, sec. 6.1;
+    # the formula from memory, confirmed here to 1e-10)
+    n = 400
+    K, M = _string_pencil(n)
+    solve, mass = _solver(K, M, sigma=-1.0)
+    lam, vecs, converged = shift_invert_eigs(solve, mass, n, k=8, sigma=-1.0)
+    h = 1.0 / (n + 1)
+    t = np.arange(1, 9) * np.pi * h
+    exact = 6.0 / h**2 * (1.0 - np.cos(t)) / (2.0 + np.cos(t))
+    assert converged
+    np.testing.assert_allclose(lam, exact, rtol=1e-10)
+    np.testing.assert_allclose(vecs.T @ M @ vecs, np.eye(8), atol=1e-10)
+
+
+def test_random_pencil_matches_dense_lapack_with_a_double_eigenvalue():
+    rng = np.random.default_rng(3)
+    n = 300
+    Q, _ = np.linalg.qr(rng.standard_normal((n, n)))
+    spectrum = np.concatenate([[1.0, 2.0, 2.0, 3.5, 4.0, 4.1], 5.0 + 50.0 * rng.random(n - 6)])
+    A = rng.standard_normal((n, n))
+    M = A @ A.T / n + np.eye(n)  # symmetric positive definite mass
+    L = np.linalg.cholesky(M)
+    K = L @ (Q * spectrum) @ Q.T @ L.T  # eigenvalues of (K, M) are ``spectrum``
+    K = 0.5 * (K + K.T)
+    solve, mass = _solver(K, M, sigma=-0.5)
+    lam, vecs, converged = shift_invert_eigs(solve, mass, n, k=6, sigma=-0.5)
+    reference = eigh(K, M, eigvals_only=True, subset_by_index=[0, 5])
+    assert converged
+    np.testing.assert_allclose(lam, reference, rtol=1e-9)
+    residual = K @ vecs - (M @ vecs) * lam
+    assert np.max(np.abs(residual)) < 1e-5 * np.max(np.abs(K))
+
+
+def test_refuses_an_impossible_count():
+    K, M = _string_pencil(10)
+    solve, mass = _solver(K, M, sigma=-1.0)
+    with pytest.raises(ValueError, match="k = 10"):
+        shift_invert_eigs(solve, mass, 10, k=10, sigma=-1.0)
