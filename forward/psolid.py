@@ -56,6 +56,7 @@ weighs a strike with them.
 from __future__ import annotations
 
 from dataclasses import dataclass, replace
+from itertools import pairwise
 
 import numpy as np
 from scipy.linalg import solve_triangular
@@ -331,21 +332,18 @@ def _kron_block(X: np.ndarray, S: np.ndarray, rows: np.ndarray, cols: np.ndarray
 
 class _BlockTridiagonalCholesky:
     """Cholesky factor of a symmetric positive definite block-tridiagonal matrix (the Schur
-    complement on the vertex layers, blocks m x m): L_k L_k^T = D_k - C_k C_k^T with
-    C_k = B_k L_(k-1)^-T, B_k the block below the diagonal. Costs n m^3 instead of the
-    (n m)^3 / 3 of a dense factor (Golub & Van Loan, Matrix Computations, 4th ed. 2013,
-    sec. 4.5, block tridiagonal systems)."""
+    complement on the vertex layers, blocks m x m, given as its diagonal blocks D_k and the
+    blocks B_k below them): L_k L_k^T = D_k - C_k C_k^T with C_k = B_k L_(k-1)^-T. Costs
+    n m^3 instead of the (n m)^3 / 3 of a dense factor (Golub & Van Loan, Matrix
+    Computations, 4th ed. 2013, sec. 4.5, block tridiagonal systems)."""
 
-    def __init__(self, A: np.ndarray, m: int) -> None:
-        n = A.shape[0] // m
-        self.m, self.n = m, n
+    def __init__(self, diagonal: list[np.ndarray], below: list[np.ndarray]) -> None:
+        self.m, self.n = diagonal[0].shape[0], len(diagonal)
         self.L, self.C = [], [None]
-        for k in range(n):
-            D = A[k * m : (k + 1) * m, k * m : (k + 1) * m].copy()
+        for k, D in enumerate(diagonal):
             if k:
-                B = A[k * m : (k + 1) * m, (k - 1) * m : k * m]
-                C = solve_triangular(self.L[-1], B.T, lower=True, check_finite=False).T
-                D -= C @ C.T
+                C = solve_triangular(self.L[-1], below[k - 1].T, lower=True, check_finite=False).T
+                D = D - C @ C.T
                 self.C.append(C)
             self.L.append(_cholesky(D))
 
@@ -371,70 +369,138 @@ def _cholesky(A: np.ndarray) -> np.ndarray:
     return L
 
 
+def _eliminate(
+    A_ii: np.ndarray, A_iv: np.ndarray, order: list[np.ndarray]
+) -> tuple[list[_Pivot], np.ndarray]:
+    """Block Gaussian elimination of an element's interior unknowns, set by set in ``order``
+    (index sets of A_ii), each coupled only to the few later unknowns it touches. Returns the
+    pivots and the update - A_vi A_ii^-1 A_iv it leaves on the vertex unknowns."""
+    q, v = A_iv.shape
+    local = np.zeros((q + v, q + v))
+    local[:q, :q] = A_ii
+    local[:q, q:] = A_iv
+    local[q:, :q] = A_iv.T
+    done = np.zeros(q + v, dtype=bool)
+    pivots = []
+    for rows in order:
+        done[rows] = True
+        later = np.flatnonzero(~done)
+        coupled = local[np.ix_(rows, later)]
+        touched = np.any(coupled != 0.0, axis=0)  # disjoint supports give exact zeros
+        cols = later[touched]
+        L = _cholesky(local[np.ix_(rows, rows)])
+        W = solve_triangular(L, coupled[:, touched], lower=True, check_finite=False)
+        local[np.ix_(cols, cols)] -= W.T @ W
+        pivots.append(_Pivot(rows, L, cols, W))
+    return pivots, local[q:, q:]
+
+
+@dataclass(frozen=True)
+class _Pivot:
+    """One eliminated set P of an element's local unknowns: L L^T = A_PP (updated), and
+    W = L^-1 A_PC on the later unknowns C it couples to."""
+
+    rows: np.ndarray
+    L: np.ndarray
+    cols: np.ndarray
+    W: np.ndarray
+
+
 class _CondensedCholesky:
     """Direct solver for sum_t X[t] (x) S[t] (symmetric positive definite) by condensation.
 
     The interior functions of an x-element couple only to each other and to the element's two
-    vertex functions, so eliminating them element by element (dense Cholesky L_e L_e^T of each
-    interior block A_ii, and C_e = L_e^-1 A_iv) leaves the Schur complement
-    A_vv - sum_e C_e^T C_e on the vertex layers, a small block-tridiagonal matrix factored by
-    blocks. This is exact Gaussian elimination in a nested-dissection order; it costs about
-    n_e ((p - 1) m)^3 / 3 against n (p m)^2 for a banded factor. Solves take blocks of
-    right-hand sides: triangular solves and products with many columns run at matrix-matrix
-    speed.
+    vertex functions, so eliminating them element by element leaves the Schur complement on
+    the vertex layers, a small block-tridiagonal matrix factored by blocks. Inside an element
+    the interior unknowns go in ``groups`` of the cross-section functions (``groups[j]`` >= 0:
+    a bubble of cross-section element ``groups[j]``; -1: the rest, eliminated last): the
+    bubbles of different cross-section elements share no support, so each group is factored
+    on its own (dense Cholesky L L^T, W = L^-1 A_PC onto the few unknowns it touches) before
+    the rest. This is exact Gaussian elimination in a nested-dissection order; it costs about
+    n_e ((p - 1) m)^3 / 3 with one group, and a fraction of that when the bubbles are most
+    of the cross-section. Solves take blocks of right-hand sides: triangular solves and
+    products with many columns run at matrix-matrix speed.
     """
 
-    def __init__(self, X: np.ndarray, S: np.ndarray, p: int) -> None:
+    def __init__(self, X: np.ndarray, S: np.ndarray, p: int, groups: np.ndarray | None = None):
         m = S.shape[1]
         self.p, self.m = p, m
         self.n_el = (X.shape[1] - 1) // p
+        groups = np.full(m, -1) if groups is None else np.asarray(groups)
+        if np.unique(groups[groups >= 0]).size < 2:
+            groups = np.full(m, -1)  # one bubble group saves less than its bookkeeping costs
+        inner_groups = np.tile(groups, p - 1)  # (p - 1) m interior unknowns, x-layer by layer
+        order = [np.flatnonzero(inner_groups == g) for g in np.unique(groups[groups >= 0])]
+        order.append(np.flatnonzero(inner_groups < 0))
+        order = [rows for rows in order if rows.size]
+        q = (p - 1) * m
         vertices = np.arange(self.n_el + 1) * p
-        schur = _kron_block(X, S, vertices, vertices)
-        self.L, self.C = [], []
+        layers = [vertices[k : k + 1] for k in range(self.n_el + 1)]
+        diagonal = [_kron_block(X, S, v, v) for v in layers]
+        below = [_kron_block(X, S, v, u) for u, v in pairwise(layers)]
+        self.pivots: list[list[_Pivot]] = []
         for e in range(self.n_el):
             inner = e * p + np.arange(1, p)
-            L = _cholesky(_kron_block(X, S, inner, inner))
-            C = solve_triangular(
-                L, _kron_block(X, S, inner, vertices[e : e + 2]), lower=True, check_finite=False
-            )
-            v = slice(e * m, (e + 2) * m)
-            schur[v, v] -= C.T @ C
-            self.L.append(L)
-            self.C.append(C)
-        self.schur = _BlockTridiagonalCholesky(schur, m)
+            A_ii = _kron_block(X, S, inner, inner)
+            A_iv = _kron_block(X, S, inner, vertices[e : e + 2])
+            if len(order) == 1:
+                L = _cholesky(A_ii)
+                W = solve_triangular(L, A_iv, lower=True, check_finite=False)
+                pivots, vv = [_Pivot(order[0], L, q + np.arange(2 * m), W)], -(W.T @ W)
+            else:
+                pivots, vv = _eliminate(A_ii, A_iv, order)
+            self.pivots.append(pivots)
+            # what the element's interior left on its two vertex layers
+            diagonal[e] += vv[:m, :m]
+            diagonal[e + 1] += vv[m:, m:]
+            below[e] += vv[m:, :m]
+        self.schur = _BlockTridiagonalCholesky(diagonal, below)
 
     def solve(self, b: np.ndarray) -> np.ndarray:
         """(A^-1 b) for b of shape (n,) or (n, r)."""
         p, m, n_el = self.p, self.m, self.n_el
         B = b.reshape(-1, m, b.shape[1] if b.ndim == 2 else 1)
         r = B.shape[2]
-        # z_e = L_e^-1 b_i; vertex right-hand side b_v - sum_e C_e^T z_e
-        z = []
+        q = (p - 1) * m
         rhs_v = B[::p].reshape(-1, r).copy()
+        locals_ = []
         for e in range(n_el):
-            b_i = B[e * p + 1 : (e + 1) * p].reshape(-1, r)
-            z_e = solve_triangular(self.L[e], b_i, lower=True, check_finite=False)
-            rhs_v[e * m : (e + 2) * m] -= self.C[e].T @ z_e
-            z.append(z_e)
-        x_v = self.schur.solve(rhs_v).reshape(-1, m, r)
+            y = np.zeros((q + 2 * m, r))
+            y[:q] = B[e * p + 1 : (e + 1) * p].reshape(-1, r)
+            for piv in self.pivots[e]:
+                z = solve_triangular(piv.L, y[piv.rows], lower=True, check_finite=False)
+                y[piv.rows] = z
+                y[piv.cols] -= piv.W.T @ z
+            rhs_v[e * m : (e + 2) * m] += y[q:]
+            locals_.append(y)
+        x_v = self.schur.solve(rhs_v)
         x = np.empty_like(B)
-        x[::p] = x_v
-        # x_i = L_e^-T (z_e - C_e x_v)
-        for e in range(n_el):
-            pair = x_v[e : e + 2].reshape(-1, r)
-            x_i = solve_triangular(
-                self.L[e], z[e] - self.C[e] @ pair, lower=True, trans="T", check_finite=False
-            )
-            x[e * p + 1 : (e + 1) * p] = x_i.reshape(p - 1, m, r)
+        x[::p] = x_v.reshape(-1, m, r)
+        for e, y in enumerate(locals_):
+            y[q:] = x_v[e * m : (e + 2) * m]
+            for piv in reversed(self.pivots[e]):
+                y[piv.rows] = solve_triangular(
+                    piv.L,
+                    y[piv.rows] - piv.W @ y[piv.cols],
+                    lower=True,
+                    trans="T",
+                    check_finite=False,
+                )
+            x[e * p + 1 : (e + 1) * p] = y[:q].reshape(p - 1, m, r)
         return x.reshape(b.shape)
 
 
 def _free_modes(
-    pencil: _KroneckerPencil, p: int, count: int, sigma: float, fmax_hz: float | None = None
+    pencil: _KroneckerPencil,
+    p: int,
+    count: int,
+    sigma: float,
+    fmax_hz: float | None = None,
+    groups: np.ndarray | None = None,
 ) -> tuple[np.ndarray, np.ndarray, str]:
     """Lowest ``count`` flexible modes of a free problem with three rigid-body modes; with
     ``fmax_hz`` every mode up to it (the count doubles until one lies above; the factor of
-    K - sigma M is reused)."""
+    K - sigma M is reused). ``groups``: the cross-section bubbles, as ``_CondensedCholesky``."""
     n_x, m = pencil.M_x.shape[0], pencil.M_s.shape[0]
     n = n_x * m
     M_x, M_s = pencil.M_x, pencil.M_s
@@ -447,7 +513,7 @@ def _free_modes(
     k = min(count + 3, n - 2)
     message = "converged"
     with _single_threaded_blas():
-        solver = _CondensedCholesky(*pencil.shifted(sigma), p)
+        solver = _CondensedCholesky(*pencil.shifted(sigma), p, groups)
         while True:
             lam, vec, converged = shift_invert_eigs(solver.solve, mass, n, k, sigma)
             if not converged:
@@ -477,6 +543,15 @@ _MAX_MODES = 120
 
 # ----------------------------------------------------------------------------------------------
 # Sampling for classification
+def _cross_section_bubbles(y: _Axis, z: _Axis) -> np.ndarray:
+    """Per cross-section unknown (y function, z function, component): the cross-section
+    element it is a bubble of (interior in both y and z), or -1."""
+    iy, iz = np.arange(y.size), np.arange(z.size)
+    inside = (iy[:, None] % y.p != 0) & (iz[None, :] % z.p != 0)
+    element = (iy[:, None] // y.p) * (z.size // z.p) + iz[None, :] // z.p
+    return np.repeat(np.where(inside, element, -1).ravel(), 3)
+
+
 def _sample_matrix(axis: _Axis, q: int) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
     """Values of every global function at q Gauss points per element: (points, weights in the
     physical coordinate, E (points, size))."""
@@ -689,6 +764,7 @@ def psolid_modes(
 
     Ny, Nz = y_axis.size, z_axis.size
     layer = np.arange(Ny * Nz * 3).reshape(Ny, Nz, 3)
+    bubbles = _cross_section_bubbles(y_axis, z_axis)
     # samples for classification: Gauss points, quadrature weights as lumped masses
     qx, qy, qz = mesh.px + 1, mesh.py + 1, mesh.pz + 1
     sx, wx, Ex = _sample_matrix(x_axis, qx)
@@ -707,7 +783,9 @@ def psolid_modes(
         held[-1, :, list(fixed)] = True  # the mid-width plane is the last y vertex
         keep = layer[~held]
         n_dof += x_axis.size * keep.size
-        f_hz, vec, message = _free_modes(pencil.restricted(keep), mesh.px, count, sigma, fmax_hz)
+        f_hz, vec, message = _free_modes(
+            pencil.restricted(keep), mesh.px, count, sigma, fmax_hz, bubbles[keep]
+        )
         coef = np.zeros((f_hz.size, x_axis.size, Ny * Nz * 3))
         coef[:, :, keep] = vec.T.reshape(f_hz.size, x_axis.size, keep.size)
         coef = coef.reshape(f_hz.size, x_axis.size, Ny, Nz, 3) / np.sqrt(2.0)
