@@ -40,7 +40,8 @@ Discretisation
   (``_CondensedCholesky``, ``_BlockTridiagonalCholesky``). That solve, applied to blocks of
   vectors at matrix-matrix speed, drives a block shift-invert Krylov iteration
   (``forward.blockeig``) with a small negative shift, as in ``forward.solid``; three rigid-body
-  modes per symmetry class are dropped.
+  modes per symmetry class are dropped. The two symmetry classes are independent problems,
+  solved on two threads where the cores are free (``_in_parallel``).
 
 Modes are sampled at Gauss points (quadrature weights as lumped masses) and named by
 ``forward.classify``. Gauss points miss the faces, so where asked (``probes``) the vertical
@@ -55,8 +56,14 @@ weighs a strike with them.
 
 from __future__ import annotations
 
+import multiprocessing
+import os
+from collections.abc import Callable
+from concurrent.futures import ThreadPoolExecutor
 from dataclasses import dataclass, replace
+from functools import partial
 from itertools import pairwise
+from typing import TypeVar
 
 import numpy as np
 from scipy.linalg import solve_triangular
@@ -512,18 +519,17 @@ def _free_modes(
 
     k = min(count + 3, n - 2)
     message = "converged"
-    with _single_threaded_blas():
-        solver = _CondensedCholesky(*pencil.shifted(sigma), p, groups)
-        while True:
-            lam, vec, converged = shift_invert_eigs(solver.solve, mass, n, k, sigma)
-            if not converged:
-                message = "the eigen-solver did not converge; results are approximate"
-            if fmax_hz is None or np.sqrt(max(lam[-1], 0.0)) / (2.0 * np.pi) > fmax_hz:
-                break
-            if k >= min(_MAX_MODES, n - 2):
-                message = f"stopped at {k - 3} modes, all below fmax_hz = {fmax_hz:g}"
-                break
-            k = min(2 * k, _MAX_MODES, n - 2)
+    solver = _CondensedCholesky(*pencil.shifted(sigma), p, groups)
+    while True:
+        lam, vec, converged = shift_invert_eigs(solver.solve, mass, n, k, sigma)
+        if not converged:
+            message = "the eigen-solver did not converge; results are approximate"
+        if fmax_hz is None or np.sqrt(max(lam[-1], 0.0)) / (2.0 * np.pi) > fmax_hz:
+            break
+        if k >= min(_MAX_MODES, n - 2):
+            message = f"stopped at {k - 3} modes, all below fmax_hz = {fmax_hz:g}"
+            break
+        k = min(2 * k, _MAX_MODES, n - 2)
     # a rigid rotation lies exactly in the space only where h(x) is a polynomial of degree
     # <= px inside each element; a profile given as stations (piecewise linear, many kinks
     # per element) leaves it a little stiff, e.g. 4e-5 of the first flexible eigenvalue (a
@@ -539,6 +545,19 @@ def _free_modes(
 
 
 _MAX_MODES = 120
+T = TypeVar("T")
+
+
+def _in_parallel(tasks: list[Callable[[], T]]) -> list[T]:
+    """Run independent eigen-solves (the symmetry classes) on threads, one BLAS thread each:
+    the factor's and the solver's matrix products release the GIL, so two classes overlap
+    on two cores. Inside a worker process of a pool (the cores are already in use) they run
+    one after the other."""
+    with _single_threaded_blas():
+        if len(tasks) < 2 or (os.cpu_count() or 1) < 2 or multiprocessing.parent_process():
+            return [task() for task in tasks]
+        with ThreadPoolExecutor(max_workers=min(len(tasks), os.cpu_count() or 1)) as pool:
+            return list(pool.map(lambda task: task(), tasks))
 
 
 # ----------------------------------------------------------------------------------------------
@@ -778,14 +797,21 @@ def psolid_modes(
     masses = material.rho * (wx * h_s)[:, None, None] * wy[None, :, None] * ws[None, None, :]
 
     f_parts, shape_parts, probe_parts, messages, n_dof = [], [], [], [], 0
-    for _, fixed, parity in _SYMMETRY:
+    keeps = []
+    for _, fixed, _ in _SYMMETRY:
         held = np.zeros((Ny, Nz, 3), dtype=bool)
         held[-1, :, list(fixed)] = True  # the mid-width plane is the last y vertex
-        keep = layer[~held]
+        keeps.append(layer[~held])
+    solved = _in_parallel(
+        [
+            partial(
+                _free_modes, pencil.restricted(keep), mesh.px, count, sigma, fmax_hz, bubbles[keep]
+            )
+            for keep in keeps
+        ]
+    )
+    for (_, _, parity), keep, (f_hz, vec, message) in zip(_SYMMETRY, keeps, solved, strict=True):
         n_dof += x_axis.size * keep.size
-        f_hz, vec, message = _free_modes(
-            pencil.restricted(keep), mesh.px, count, sigma, fmax_hz, bubbles[keep]
-        )
         coef = np.zeros((f_hz.size, x_axis.size, Ny * Nz * 3))
         coef[:, :, keep] = vec.T.reshape(f_hz.size, x_axis.size, keep.size)
         coef = coef.reshape(f_hz.size, x_axis.size, Ny, Nz, 3) / np.sqrt(2.0)
