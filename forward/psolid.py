@@ -376,6 +376,17 @@ def _cholesky(A: np.ndarray) -> np.ndarray:
     return L
 
 
+@dataclass(frozen=True)
+class _Pivot:
+    """One eliminated set P of an element's local unknowns: L L^T = A_PP (updated), and
+    W = L^-1 A_PC on the later unknowns C it couples to."""
+
+    rows: np.ndarray
+    L: np.ndarray
+    cols: np.ndarray
+    W: np.ndarray
+
+
 def _eliminate(
     A_ii: np.ndarray, A_iv: np.ndarray, order: list[np.ndarray]
 ) -> tuple[list[_Pivot], np.ndarray]:
@@ -400,17 +411,6 @@ def _eliminate(
         local[np.ix_(cols, cols)] -= W.T @ W
         pivots.append(_Pivot(rows, L, cols, W))
     return pivots, local[q:, q:]
-
-
-@dataclass(frozen=True)
-class _Pivot:
-    """One eliminated set P of an element's local unknowns: L L^T = A_PP (updated), and
-    W = L^-1 A_PC on the later unknowns C it couples to."""
-
-    rows: np.ndarray
-    L: np.ndarray
-    cols: np.ndarray
-    W: np.ndarray
 
 
 class _CondensedCholesky:
