@@ -88,3 +88,18 @@ def test_condensed_solver_with_bubble_groups_equals_a_dense_solve():
     for g in (groups, None):
         got = psolid._CondensedCholesky(X, S, 3, g).solve(b)
         np.testing.assert_allclose(got, expected, rtol=1e-8, atol=1e-12 * np.abs(expected).max())
+
+
+def test_symmetry_classes_on_threads_give_the_sequential_result(monkeypatch):
+    from tonewright.forward import psolid
+    from tonewright.forward.geometry import constant
+    from tonewright.forward.orthotropic import isotropic
+
+    aluminium = isotropic(69e9, 0.33, 2700.0)
+    bar = dict(length=0.3, width=0.04, blank_thickness=0.012, thickness=constant(0.012))
+    mesh = psolid.PMesh(nx=2, px=4, py=3, pz=3)
+    threaded = psolid.psolid_modes(**bar, material=aluminium, count=6, mesh=mesh)
+    monkeypatch.setattr(psolid.multiprocessing, "parent_process", lambda: object())
+    sequential = psolid.psolid_modes(**bar, material=aluminium, count=6, mesh=mesh)
+    np.testing.assert_allclose(threaded.f_hz, sequential.f_hz, rtol=1e-12)
+    assert [m.family for m in threaded.modes] == [m.family for m in sequential.modes]
