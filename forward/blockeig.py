@@ -61,8 +61,7 @@ def shift_invert_eigs(
     is then accurate to about tol^2 relative), or when the residual-gap bound on the Ritz
     value, ||r||^2 / gap (Parlett, *The Symmetric Eigenvalue Problem*, 1998, thm. 11.7.1;
     gap from the other Ritz values), is below ``eig_tol`` theta (1e-6: 0.001 cent in
-    frequency). Returns (lambda ascending, vectors
-    M-orthonormal (n, k), converged).
+    frequency). Returns (lambda ascending, vectors M-orthonormal (n, k), converged).
     """
     if not 1 <= k < n:
         raise ValueError(f"k = {k}: need 1 <= k < n = {n}")
