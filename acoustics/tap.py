@@ -481,6 +481,35 @@ def _nonlinear_columns(parts: tuple, coef: NDArray[np.float64], K: int) -> NDArr
     return np.concatenate([Jw, Jl]).T
 
 
+def _start_decays(
+    D: NDArray[np.complex128],
+    m: NDArray[np.float64],
+    N: int,
+    omega: NDArray[np.float64],
+    log_alpha_hi: float,
+) -> NDArray[np.float64]:
+    """Starting decays: the shared trial decay on a 12-point grid whose linear least-squares
+    fit leaves the smallest residual (all trials in one batch: one DFT kernel call and one
+    stacked QR; the basis has full rank, its columns being distinct lines and a background)."""
+    K = omega.size
+    grid = np.linspace(np.log(0.3 / N), log_alpha_hi - np.log(8.0), 12)
+    al = np.exp(grid)[:, None] * np.ones(K)  # (12, K)
+    u = np.concatenate([-al + 1j * omega, -al - 1j * omega], axis=1)  # (12, 2K)
+    G_all, _ = damped_sinusoid_dft(u, N, m)  # (12, 2K, bins)
+    G, Gc = G_all[:, :K], G_all[:, K:]
+    mid = 0.5 * (m[0] + m[-1])
+    mu = (m - mid) / max(1.0, 0.5 * (m[-1] - m[0]))
+    ones = np.ones_like(mu, dtype=complex)
+    background = np.broadcast_to(np.stack([ones, 1j * ones, mu + 0j, 1j * mu]), (12, 4, m.size))
+    B = np.concatenate([0.5 * (G + Gc), 0.5j * (G - Gc), background], axis=1)  # (12, 2K+4, bins)
+    Bst = np.concatenate([B.real, B.imag], axis=2).transpose(0, 2, 1)  # (12, 2 bins, 2K+4)
+    Dst = _stack(D)
+    Q = np.linalg.qr(Bst)[0]
+    projected = np.einsum("tij,i->tj", Q, Dst)
+    rss = Dst @ Dst - np.einsum("tj,tj->t", projected, projected)
+    return np.full(K, grid[int(np.argmin(rss))])
+
+
 def _fit_group(
     D: NDArray[np.complex128],
     m: NDArray[np.float64],
@@ -505,13 +534,7 @@ def _fit_group(
     Dst = _stack(D)
 
     if log_alpha0 is None:
-        # Start the decays on a grid: linear least squares for each shared trial decay.
-        best = (np.inf, np.zeros(K))
-        for la in np.linspace(np.log(0.3 / N), log_alpha_hi - np.log(8.0), 12):
-            _, rss = _linear_solve(_design(omega0, np.full(K, la), N, m)[0], D)
-            if rss < best[0]:
-                best = (rss, np.full(K, la))
-        log_alpha0 = best[1]
+        log_alpha0 = _start_decays(D, m, N, omega0, log_alpha_hi)
     lo = np.concatenate([omega_lo, np.full(K, log_alpha_lo)])
     hi = np.concatenate([omega_hi, np.full(K, log_alpha_hi)])
     half = 0.5 * (hi - lo)
