@@ -447,15 +447,20 @@ def _design(
     """Linear basis (bins x (2K + 4)) and the pieces needed for the nonlinear derivatives:
     ``(alpha, G, dG, Gc, dGc)``, one row per partial for ``u`` and for ``conj(u)``."""
     K = omega.size
-    mid = 0.5 * (m[0] + m[-1])
-    mu = (m - mid) / max(1.0, 0.5 * (m[-1] - m[0]))
     al = np.exp(log_alpha)
     G_all, dG_all = damped_sinusoid_dft(np.concatenate([-al + 1j * omega, -al - 1j * omega]), N, m)
     G, Gc, dG, dGc = G_all[:K], G_all[K:], dG_all[:K], dG_all[K:]
     # x[n] = a e^{-alpha n} cos(omega n) - b e^{-alpha n} sin(omega n), C = a + i b
-    ones = np.ones_like(mu, dtype=complex)
-    B = np.concatenate([0.5 * (G + Gc), 0.5j * (G - Gc), [ones, 1j * ones, mu + 0j, 1j * mu]])
+    B = np.concatenate([0.5 * (G + Gc), 0.5j * (G - Gc), _background(m)])
     return B.T, (al, G, dG, Gc, dGc)
+
+
+def _background(m: NDArray[np.float64]) -> NDArray[np.complex128]:
+    """The linear background's four basis rows over bins ``m``: a complex constant and a
+    complex slope in the centred, scaled bin index."""
+    mu = (m - 0.5 * (m[0] + m[-1])) / max(1.0, 0.5 * (m[-1] - m[0]))
+    ones = np.ones_like(mu, dtype=complex)
+    return np.stack([ones, 1j * ones, mu + 0j, 1j * mu])
 
 
 def _stack(z: NDArray[np.complex128]) -> NDArray[np.float64]:
@@ -497,10 +502,7 @@ def _start_decays(
     u = np.concatenate([-al + 1j * omega, -al - 1j * omega], axis=1)  # (12, 2K)
     G_all, _ = damped_sinusoid_dft(u, N, m)  # (12, 2K, bins)
     G, Gc = G_all[:, :K], G_all[:, K:]
-    mid = 0.5 * (m[0] + m[-1])
-    mu = (m - mid) / max(1.0, 0.5 * (m[-1] - m[0]))
-    ones = np.ones_like(mu, dtype=complex)
-    background = np.broadcast_to(np.stack([ones, 1j * ones, mu + 0j, 1j * mu]), (12, 4, m.size))
+    background = np.broadcast_to(_background(m), (12, 4, m.size))
     B = np.concatenate([0.5 * (G + Gc), 0.5j * (G - Gc), background], axis=1)  # (12, 2K+4, bins)
     Bst = np.concatenate([B.real, B.imag], axis=2).transpose(0, 2, 1)  # (12, 2 bins, 2K+4)
     Dst = _stack(D)
