@@ -413,6 +413,15 @@ def _eliminate(
     return pivots, local[q:, q:]
 
 
+def _cross_section_bubbles(y: _Axis, z: _Axis) -> np.ndarray:
+    """Per cross-section unknown (y function, z function, component): the cross-section
+    element it is a bubble of (interior in both y and z), or -1."""
+    iy, iz = np.arange(y.size), np.arange(z.size)
+    inside = (iy[:, None] % y.p != 0) & (iz[None, :] % z.p != 0)
+    element = (iy[:, None] // y.p) * (z.size // z.p) + iz[None, :] // z.p
+    return np.repeat(np.where(inside, element, -1).ravel(), 3)
+
+
 class _CondensedCholesky:
     """Direct solver for sum_t X[t] (x) S[t] (symmetric positive definite) by condensation.
 
@@ -562,15 +571,6 @@ def _in_parallel(tasks: list[Callable[[], T]]) -> list[T]:
 
 # ----------------------------------------------------------------------------------------------
 # Sampling for classification
-def _cross_section_bubbles(y: _Axis, z: _Axis) -> np.ndarray:
-    """Per cross-section unknown (y function, z function, component): the cross-section
-    element it is a bubble of (interior in both y and z), or -1."""
-    iy, iz = np.arange(y.size), np.arange(z.size)
-    inside = (iy[:, None] % y.p != 0) & (iz[None, :] % z.p != 0)
-    element = (iy[:, None] // y.p) * (z.size // z.p) + iz[None, :] // z.p
-    return np.repeat(np.where(inside, element, -1).ravel(), 3)
-
-
 def _sample_matrix(axis: _Axis, q: int) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
     """Values of every global function at q Gauss points per element: (points, weights in the
     physical coordinate, E (points, size))."""
